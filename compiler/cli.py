@@ -1,0 +1,183 @@
+"""The `prespec` command line. Commands, options and exit codes are binding (DEVELOPERS.md).
+
+Every command returns a :class:`Report`: an exit code, human lines, and a JSON payload
+printed instead of the lines under `--json`. Problems from any pass arrive as
+:class:`~compiler.problems.Stop` and are printed one per line, in the GNU form.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
+
+from . import __version__
+from .problems import Exit, Problem, Stop
+
+
+@dataclass
+class Report:
+    exit_code: int = Exit.OK
+    lines: list[str] = field(default_factory=list)
+    payload: dict = field(default_factory=dict)
+    problems: tuple[Problem, ...] = ()
+
+
+class _Parser(argparse.ArgumentParser):
+    """argparse that exits 2 with a one-line message (binding: command-line errors exit 2)."""
+
+    def error(self, message: str):  # type: ignore[override]
+        self.exit(Exit.PLAN_INVALID, f"prespec: error: {message}\n")
+
+
+def _cmd_check(args) -> Report:
+    from .pipeline import compile_plan
+
+    plan = compile_plan(args.plan)
+    report = Report(payload={"plan": args.plan, "study": plan.study.id})
+    if args.explain:
+        from .explain import explain, explain_json
+
+        report.lines.append(explain(plan))
+        report.payload["explain"] = explain_json(plan)
+    else:
+        report.lines.append(f"{args.plan}: ok: study {plan.study.id}, "
+                            f"{len(plan.analyses)} analyses, {len(plan.decisions)} decisions")
+    return report
+
+
+def _cmd_freeze(args) -> Report:
+    from .lock import freeze
+
+    return freeze(args.plan)
+
+
+def _cmd_amend(args) -> Report:
+    from .lock import amend
+
+    return amend(args.plan, args.reason)
+
+
+def _cmd_run(args) -> Report:
+    from .bundle import run
+
+    return run(args.plan, data=args.data, out=args.out, unlocked=args.unlocked,
+               stream=args.stream, sign_key=args.sign, progress=not args.json)
+
+
+def _cmd_rehearse(args) -> Report:
+    from .bundle import rehearse
+
+    return rehearse(args.plan, data=args.data, scramble=args.scramble, out=args.out,
+                    seed=args.seed, rows=args.rows, effect=args.effect,
+                    progress=not args.json)
+
+
+def _cmd_verify(args) -> Report:
+    from .verify import verify
+
+    return verify(args.dir, data=args.data, key=args.key)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    common = _Parser(add_help=False)
+    common.add_argument("--json", action="store_true", help="print findings as one JSON document")
+    common.add_argument("--debug", action="store_true", help="show the traceback of an internal fault")
+
+    parser = _Parser(
+        prog="prespec",
+        description="Check, freeze, rehearse and run a pre-specified analysis plan; "
+                    "seal the results for audit.",
+        parents=[common])
+    parser.add_argument("--version", action="version", version=f"prespec {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    sub.required = True
+
+    p = sub.add_parser("check", parents=[common], help="check a plan and report every problem",
+                       description="Load, validate and resolve PLAN; print every problem.")
+    p.add_argument("plan", metavar="PLAN")
+    p.add_argument("--explain", action="store_true",
+                   help="print the compiled plan in plain words")
+    p.set_defaults(handler=_cmd_check)
+
+    p = sub.add_parser("freeze", parents=[common], help="freeze a plan by hash",
+                       description="Write PLAN.lock.json beside the plan.")
+    p.add_argument("plan", metavar="PLAN")
+    p.set_defaults(handler=_cmd_freeze)
+
+    p = sub.add_parser("amend", parents=[common], help="re-freeze a changed plan, logging why",
+                       description="Re-freeze a changed plan and append to its amendment log.")
+    p.add_argument("plan", metavar="PLAN")
+    p.add_argument("--reason", required=True, metavar="TEXT", help="why the plan changed")
+    p.set_defaults(handler=_cmd_amend)
+
+    p = sub.add_parser("run", parents=[common], help="the confirmatory run: fit, decide, seal",
+                       description="Run a frozen plan on the final data and write a sealed bundle.")
+    p.add_argument("plan", metavar="PLAN")
+    p.add_argument("--data", metavar="FILE", help="the data file (overrides data.path)")
+    p.add_argument("--out", metavar="DIR", help="bundle folder (default out/<study id>)")
+    p.add_argument("--unlocked", action="store_true",
+                   help="run without a matching lock; the bundle is stamped NOT PRE-REGISTERED")
+    p.add_argument("--stream", action="store_true",
+                   help="stream the data in batches even when it would fit in memory")
+    p.add_argument("--sign", metavar="KEY", help="sign the manifest with an Ed25519 private key (PEM)")
+    p.set_defaults(handler=_cmd_run)
+
+    p = sub.add_parser("rehearse", parents=[common], help="rehearse the plan before unblinding",
+                       description="Run the whole pipeline on synthetic data made from the "
+                                   "dictionary, or on real data with one column scrambled.")
+    p.add_argument("plan", metavar="PLAN")
+    p.add_argument("--out", metavar="DIR", help="bundle folder (default out/<study id>-rehearsal)")
+    p.add_argument("--data", metavar="FILE", help="blinded real data (with --scramble)")
+    p.add_argument("--scramble", metavar="VAR", help="the column to permute (usually the exposure)")
+    p.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0)")
+    p.add_argument("--rows", type=int, metavar="N", help="synthetic rows (default data.expected_rows or 500)")
+    p.add_argument("--effect", type=float, default=0.0, metavar="X",
+                   help="synthetic exposure effect on the analysis scale (default 0)")
+    p.set_defaults(handler=_cmd_rehearse)
+
+    p = sub.add_parser("verify", parents=[common], help="check a sealed bundle offline",
+                       description="Check every artifact of DIR against its manifest.")
+    p.add_argument("dir", metavar="DIR")
+    p.add_argument("--data", metavar="FILE", help="re-run the bundled plan on FILE and compare")
+    p.add_argument("--key", metavar="PUB", help="check the manifest signature with this public key")
+    p.set_defaults(handler=_cmd_verify)
+    return parser
+
+
+def _emit(report: Report, as_json: bool, command: str) -> None:
+    if as_json:
+        doc = {"command": command, "exit_code": int(report.exit_code),
+               "problems": [p.as_json() for p in report.problems], **report.payload}
+        sys.stdout.write(json.dumps(doc, sort_keys=True, ensure_ascii=False) + "\n")
+        return
+    for p in report.problems:
+        print(p.format(), file=sys.stderr if p.is_error else sys.stdout)
+    for line in report.lines:
+        print(line)
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    handler: Callable[[argparse.Namespace], Report] = args.handler
+    try:
+        report = handler(args)
+    except Stop as stop:
+        report = Report(exit_code=stop.exit_code, problems=stop.problems)
+    except KeyboardInterrupt:
+        print("prespec: interrupted", file=sys.stderr)
+        return Exit.INTERNAL
+    except Exception as exc:  # an internal fault: one line unless --debug
+        if args.debug:
+            raise
+        print(f"prespec: internal error: {type(exc).__name__}: {exc} (rerun with --debug)",
+              file=sys.stderr)
+        return Exit.INTERNAL
+    _emit(report, args.json, args.command)
+    return int(report.exit_code)
+
+
+if __name__ == "__main__":
+    sys.exit(main())

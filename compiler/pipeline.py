@@ -1,0 +1,76 @@
+"""The whole journey from plan file to sealed bundle, one pass at a time.
+
+    plan.yaml --load--> --validate--> --resolve--> Plan
+    data file --read--> Table --bind--> BoundData --design--> --fit--> --decide--> Verdicts
+              --results--> results.json --render--> report.html, report.pdf --seal--> bundle
+
+Each pass lives in the module of its name and is a plain function; heavy libraries are
+imported inside the passes that need them, so that `prespec check` starts fast.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from .plan import Plan
+
+
+@dataclass(frozen=True)
+class Stamp:
+    """How a run is to be labelled: pre-registered, not pre-registered, or a rehearsal."""
+
+    preregistered: bool
+    rehearsal: bool = False
+    note: str | None = None  # e.g. "synthetic data, seed 1" or "exposure arm scrambled, seed 1"
+
+    @property
+    def banner(self) -> str:
+        if self.rehearsal:
+            return "REHEARSAL"
+        return "PRE-REGISTERED" if self.preregistered else "NOT PRE-REGISTERED"
+
+
+@dataclass(frozen=True)
+class Analysed:
+    """Everything the analysis passes produced, ready for the results document."""
+
+    plan: Plan
+    bound: object  # BoundData
+    fits: tuple  # AnalysisFit per analysis, in plan order
+    verdicts: tuple  # Verdict per decision, in plan order
+    assumptions: tuple  # AssumptionOutcome per assumption
+
+
+def compile_plan(path: str | Path) -> Plan:
+    """load → validate → resolve. Raises problems.Stop (exit 2) with every problem found."""
+    from . import load, resolve, validate
+
+    tree = load.load(path)
+    validate.validate(tree)
+    return resolve.resolve(tree)
+
+
+def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
+            table=None) -> Analysed:
+    """read → bind → design → fit → decide. Raises problems.Stop (exit 3) on a broken contract."""
+    from . import bind, decide, design, fit, read
+
+    if table is None:
+        table = read.read(plan, data_path)
+    bound = bind.bind(plan, table)
+    fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
+    verdicts, assumptions = decide.decide(plan, fits)
+    return Analysed(plan, bound, fits, verdicts, assumptions)
+
+
+def data_path_for(plan: Plan, override: str | Path | None) -> Path:
+    """The data file: `--data` when given, else `data.path` relative to the plan file."""
+    from .problems import Exit, Problem, Stop
+
+    if override is not None:
+        return Path(override)
+    if plan.data.path is None:
+        raise Stop([Problem("the plan names no data file (data.path) and --data was not given",
+                            code="no-data")], Exit.PLAN_INVALID)
+    return Path(plan.source).parent / plan.data.path

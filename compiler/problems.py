@@ -1,0 +1,103 @@
+"""Problems as values: every pass reports what it found, each finding with its place.
+
+A plan problem prints in the GNU form ``PATH:LINE:COL: error: message``; a data-contract
+finding prints as ``data: COLUMN: message``. Passes collect problems and raise them together
+as one :class:`Stop`, so the user sees every problem in one go.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import IntEnum
+from typing import Iterable, Literal
+
+Severity = Literal["error", "warning"]
+
+
+class Exit(IntEnum):
+    """Exit codes of the command line (binding: see DEVELOPERS.md)."""
+
+    OK = 0
+    INTERNAL = 1
+    PLAN_INVALID = 2
+    DATA_CONTRACT = 3
+    LOCK = 4
+    NOT_INTACT = 5
+
+
+@dataclass(frozen=True)
+class Place:
+    """Where in a plan file a value came from (1-based line and column)."""
+
+    file: str
+    line: int
+    col: int
+
+    def __str__(self) -> str:
+        return f"{self.file}:{self.line}:{self.col}"
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One finding. ``place`` points into the plan; ``column`` names a data column instead."""
+
+    message: str
+    place: Place | None = None
+    column: str | None = None
+    hint: str | None = None
+    severity: Severity = "error"
+    code: str = ""  # a short stable identifier for CI, e.g. "unknown-key", "out-of-range"
+    details: dict = field(default_factory=dict, compare=False, hash=False)
+
+    @property
+    def is_error(self) -> bool:
+        return self.severity == "error"
+
+    def format(self) -> str:
+        if self.place is not None:
+            head = f"{self.place}: {self.severity}: {self.message}"
+        elif self.column is not None:
+            head = f"data: {self.column}: {self.message}" if self.is_error else (
+                f"data: {self.column}: {self.severity}: {self.message}")
+        else:
+            head = f"{self.severity}: {self.message}"
+        return head if not self.hint else f"{head}\n  hint: {self.hint}"
+
+    def as_json(self) -> dict:
+        out: dict = {"severity": self.severity, "message": self.message, "code": self.code}
+        if self.place is not None:
+            out.update(file=self.place.file, line=self.place.line, col=self.place.col)
+        if self.column is not None:
+            out["column"] = self.column
+        if self.hint:
+            out["hint"] = self.hint
+        if self.details:
+            out["details"] = self.details
+        return out
+
+
+class Stop(Exception):
+    """Raised by a pass that cannot go on; carries every problem found and the exit code."""
+
+    def __init__(self, problems: Iterable[Problem], exit_code: Exit):
+        self.problems = tuple(problems)
+        self.exit_code = exit_code
+        super().__init__("\n".join(p.format() for p in self.problems))
+
+
+def sorted_problems(problems: Iterable[Problem]) -> tuple[Problem, ...]:
+    """Plan problems in file order, then data problems by column, warnings after errors."""
+
+    def key(p: Problem):
+        place = p.place or Place("", 0, 0)
+        return (not p.is_error, place.file, place.line, place.col, p.column or "", p.message)
+
+    return tuple(sorted(problems, key=key))
+
+
+def stop_if_errors(problems: Iterable[Problem], exit_code: Exit) -> tuple[Problem, ...]:
+    """Raise :class:`Stop` when any problem is an error; otherwise return the warnings."""
+    problems = sorted_problems(problems)
+    if any(p.is_error for p in problems):
+        raise Stop(problems, exit_code)
+    return problems

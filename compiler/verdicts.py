@@ -1,0 +1,43 @@
+"""What `decide` hands on: one verdict per decision rule, each explaining itself."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+VerdictWord = Literal["supported", "not supported", "undetermined"]
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """The outcome of one decision rule.
+
+    ``reason`` is one plain sentence with the numbers in it; ``numbers`` holds the numbers
+    themselves (estimate, ci_low, ci_high, statistic, p_value, adjusted_p, alpha_used,
+    margin, scale, ...), None where a value could not be computed.
+    """
+
+    id: str
+    analysis: str
+    test: str
+    tier: str
+    verdict: VerdictWord
+    reason: str
+    covariance: str = "classical"
+    branch: str | None = None  # which assumption fallback was taken, and why
+    multiplicity: str | None = None  # e.g. "holm over H1, H2, H3 at α = 0.05"
+    numbers: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class AssumptionOutcome:
+    """What an assumption check found and which branch the named decisions took."""
+
+    id: str
+    analysis: str
+    check: str
+    statistic: float | None
+    p_value: float | None
+    triggered: bool
+    covariance: str  # the covariance the named decisions used
+    reason: str
