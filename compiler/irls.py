@@ -110,11 +110,13 @@ def moments_combine(parts: Iterable[Moments]) -> Moments:
 @dataclass(frozen=True)
 class GlmTierFit:
     """One tier's IRLS result. ``r`` is the R factor of √W·X at the weights of the last
-    least-squares step: the classical covariance is R⁻¹R⁻ᵀ (scale 1)."""
+    least-squares step (statsmodels' covariance is R⁻¹R⁻ᵀ, scale 1); ``r_solution`` is the
+    same at the weights of the returned ``params`` (the one compiler/fit_glm.py uses)."""
 
     width: int
     params: np.ndarray
     r: np.ndarray
+    r_solution: np.ndarray
     n: int
     deviance: float
     null_deviance: float
@@ -161,11 +163,11 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
             tier.deviances.append(dev)
             seen = len(tier.deviances) - 2  # iterations completed before this pass
             converged = seen >= 1 and _close(tier.deviances[-2], dev, tolerance)
-            if converged or seen == max_iterations:
-                tier.done = GlmTierFit(tier.width, tier.params, tier.r, moments.n, dev,
-                                       null_dev, llf, pearson, seen, converged)
-                continue
             r = acc.r
+            if converged or seen == max_iterations:
+                tier.done = GlmTierFit(tier.width, tier.params, tier.r, r[:-1, :-1], moments.n,
+                                       dev, null_dev, llf, pearson, seen, converged)
+                continue
             tier.params = solve_triangular(r[:-1, :-1], r[:-1, -1])
             tier.r = r[:-1, :-1]
     return tuple(t.done for t in tiers)  # type: ignore[misc]

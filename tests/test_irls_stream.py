@@ -87,3 +87,11 @@ def test_iteration_limit_reports_not_converged():
     expected = sm.GLM(y, x, family=sm.families.Binomial()).fit(maxiter=2)
     assert not fit.converged and fit.iterations == 2
     np.testing.assert_allclose(fit.params, expected.params, rtol=1e-10)
+
+
+def test_r_at_the_solution_is_the_weighted_design_at_the_returned_coefficients():
+    x, y, offset = simulated("poisson")
+    (fit,) = fit_tiers(in_batches(x, y, offset, 256), "poisson", [5])
+    mu = np.exp(x @ fit.params + offset)  # Poisson weights are μ (canonical log link)
+    expected = np.linalg.qr(x * np.sqrt(mu)[:, None], mode="r")
+    np.testing.assert_allclose(np.abs(fit.r_solution), np.abs(expected), rtol=1e-10)
