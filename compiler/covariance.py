@@ -1,0 +1,114 @@
+"""Covariance of the coefficients: classical, heteroscedasticity-consistent HC0–HC3, clustered.
+
+All from the R factor, never from an inverted XᵀX. With X̃ = W½X = Q R (W the GLM working
+weights, the identity for gaussian), the bread is (X̃ᵀX̃)⁻¹ = R⁻¹R⁻ᵀ and Q = X̃ R⁻¹, so
+
+    sandwich = R⁻¹ [ Σ_i ω_i r_i² q_i q_iᵀ ] R⁻ᵀ,
+
+with q_i the i-th row of Q, r_i the Pearson residual (the raw residual for gaussian) and
+h_i = ‖q_i‖² the leverage. The forms (MacKinnon & White 1985, J Econometrics 29:305–325):
+    HC0  ω = 1            HC1  ω = n / (n − p)
+    HC2  ω = 1 / (1 − h)  HC3  ω = 1 / (1 − h)²
+Clustered (Liang & Zeger 1986; the CR1 small-sample factor statsmodels' ``cov_type="cluster"``
+uses): meat = G/(G − 1) · (n − 1)/(n − p) · Σ_g s_g s_gᵀ with s_g = Σ_{i∈g} r_i q_i.
+The prefix property carries over: for nested gaussian tiers Q_k is the first p_k columns of
+Q, so one pass over the rows serves every tier.
+Gaussian inference uses t on n − p degrees of freedom, or G − 1 when clustered (the reference
+statsmodels uses with ``use_t=True``); GLM inference uses the normal.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .plan import Covariance
+from .qr import row_chunks
+
+
+def reference_df(covariance: Covariance, family: str, df_resid: int,
+                 clusters: int | None) -> float | None:
+    """Degrees of freedom of the t reference, or None for the normal."""
+    if family != "gaussian":
+        return None
+    if covariance.kind == "cluster":
+        return float(clusters - 1) if clusters else None
+    return float(df_resid)
+
+
+def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,
+                         covariances, cluster: np.ndarray | None = None,
+                         root_w: np.ndarray | None = None) -> list[dict[str, np.ndarray]]:
+    """Robust covariance matrices of nested fits sharing one R⁻¹ (prefixes of ``rinv``).
+
+    ``widths[k]`` is tier k's number of columns and ``residuals[k]`` its Pearson (gaussian:
+    raw) residuals; ``covariances`` are the robust choices wanted. Returns, per tier, a dict
+    from covariance label to its p_k × p_k matrix.
+    """
+    n = x.shape[0]
+    kinds = [c for c in covariances if c.kind != "classical"]
+    if not kinds:
+        return [{} for _ in widths]
+    needs_leverage = any(c.kind in ("HC2", "HC3") for c in kinds)
+    clustered = any(c.kind == "cluster" for c in kinds)
+    groups = int(cluster.max()) + 1 if clustered and cluster is not None and n else 0
+    top = max(widths)
+    meats = [{c.label: np.zeros((w, w)) for c in kinds if c.kind != "cluster"} for w in widths]
+    sums = [np.zeros((groups, w)) for w in widths] if clustered else None
+    inverse = rinv[:top, :top]
+    with np.errstate(divide="ignore", invalid="ignore"):  # leverage 1: inf, judged later
+        _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, needs_leverage,
+                    meats, sums, groups)
+    out = []
+    for k, w in enumerate(widths):
+        r = rinv[:w, :w]
+        found = {}
+        for c in kinds:
+            if c.kind == "cluster":
+                meat = sums[k].T @ sums[k]
+                if groups > 1 and n > w:
+                    meat = meat * (groups / (groups - 1.0)) * ((n - 1.0) / (n - w))
+                else:
+                    meat = meat * np.nan  # one cluster: no between-cluster information
+            else:
+                meat = meats[k][c.label]
+                if c.kind == "HC1":
+                    meat = meat * (n / (n - w))
+            with np.errstate(all="ignore"):
+                found[c.label] = r @ meat @ r.T
+        out.append(found)
+    return out
+
+
+def _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, needs_leverage,
+                meats, sums, groups) -> None:
+    top = inverse.shape[0]
+    for rows in row_chunks(x.shape[0]):
+        xc = x[rows, :top]
+        if root_w is not None:
+            xc = xc * root_w[rows, None]
+        qc = xc @ inverse
+        squares = np.cumsum(qc * qc, axis=1) if needs_leverage else None
+        for k, w in enumerate(widths):
+            qk = qc[:, :w]
+            u = qk * residuals[k][rows, None]
+            h = squares[:, w - 1] if needs_leverage else None
+            for c in kinds:
+                if c.kind in ("HC0", "HC1"):
+                    meats[k][c.label] += u.T @ u
+                elif c.kind == "HC2":
+                    meats[k][c.label] += (u / (1.0 - h)[:, None]).T @ u
+                elif c.kind == "HC3":
+                    meats[k][c.label] += (u / ((1.0 - h) ** 2)[:, None]).T @ u
+            if sums is not None:
+                codes = cluster[rows]
+                for j in range(w):
+                    sums[k][:, j] += np.bincount(codes, weights=u[:, j], minlength=groups)
+
+
+def distinct_covariances(plan, analysis) -> list[Covariance]:
+    """The analysis covariance first, then each distinct fallback its assumptions name."""
+    found = [analysis.covariance]
+    for assumption in plan.assumptions:
+        if assumption.analysis == analysis.id and assumption.fallback not in found:
+            found.append(assumption.fallback)
+    return found

@@ -1,0 +1,219 @@
+"""The design pass: from the bound sample to the design matrix of the largest tier.
+
+Our own code builds every column from the resolved terms; no formula string is parsed and
+nothing is evaluated. Columns come in tier order — intercept, the exposure (tier 0), then each
+tier's added terms in the order written — so every tier's design is a prefix of the next.
+
+Column forms and labels (design.md fixes the labels):
+  variable    numeric as is (``age``); categorical in treatment coding against the declared
+              reference, one indicator per other level in declared order (``district=hillside``)
+  power       x**K (``age^2``)
+  log         log x (``log(income)``); every value must be positive
+  product     elementwise product of every combination of its factors' columns, first factor
+              outermost (``district=hillside*age``, ``arm=walking*district=market``)
+  spline      a natural (restricted) cubic spline with the declared knots t_1 < … < t_k, in the
+              truncated-power basis (Devlin & Weeks 1986; Harrell, Regression Modeling
+              Strategies, section 2.4.5): k − 1 columns,
+                  spline(x)[1]   = x
+                  spline(x)[j+1] = [ (x − t_j)₊³
+                                     − (x − t_{k−1})₊³ (t_k − t_j) / (t_k − t_{k−1})
+                                     + (x − t_k)₊³ (t_{k−1} − t_j) / (t_k − t_{k−1}) ] / (t_k − t_1)²
+                  for j = 1 … k − 2;
+              linear beyond the boundary knots; the division by (t_k − t_1)² keeps the columns
+              on the scale of x, which helps the conditioning of the QR.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .bound import BoundData
+from .fitted import Design
+from .plan import Analysis, Plan, Term, Variable
+from .problems import Exit, Problem, Stop
+
+INTERCEPT = "(intercept)"
+_EXAMPLES = 5  # example rows named in a data problem
+
+
+def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
+    """The design of ``analysis`` on its sample; raises Stop (exit 3) on values a term cannot
+    take (log of a non-positive value, a non-positive offset)."""
+    sample = bound.sample(analysis.id)
+    builder = _Builder(plan, bound.table.columns, sample.rows, sample.row_ids, analysis.id)
+
+    labels: list[str] = [INTERCEPT]
+    column_term: list[str] = [INTERCEPT]
+    columns: list[np.ndarray] = [np.ones(len(sample.rows))]
+    widths: list[int] = []
+    exposure_columns: tuple[int, ...] = ()
+    for index, terms in enumerate(tier_terms(analysis)):
+        for term in terms:
+            for label, values in builder.term_columns(term):
+                labels.append(label)
+                column_term.append(term.label)
+                columns.append(values)
+        widths.append(len(columns))
+        if index == 0:
+            exposure_columns = tuple(range(1, len(columns)))
+
+    y = builder.outcome(plan.variable(analysis.outcome))
+    offset = None
+    if analysis.family == "poisson" and analysis.offset:
+        offset = builder.positive(analysis.offset, "offset", builder.numeric(analysis.offset))
+        offset = np.log(offset)
+    cluster = None
+    if analysis.covariance.kind == "cluster" and analysis.covariance.cluster:
+        cluster = cluster_codes(builder.raw(analysis.covariance.cluster))
+    builder.stop_if_problems()
+
+    x = np.empty((len(sample.rows), len(columns)), dtype=np.float64)  # C order: row chunks
+    for j, values in enumerate(columns):
+        x[:, j] = values
+    return Design(
+        analysis=analysis.id, x=x, y=y, offset=offset, labels=tuple(labels),
+        column_term=tuple(column_term), tier_names=tuple(t.name for t in analysis.tiers),
+        tier_width=tuple(widths), exposure_columns=exposure_columns, cluster=cluster,
+        row_ids=np.asarray(sample.row_ids, dtype=object),
+    )
+
+
+def tier_terms(analysis: Analysis) -> list[tuple[Term, ...]]:
+    """The terms each tier adds to the one before, the exposure making up tier 0."""
+    exposure = Term("variable", (analysis.exposure,))
+    added: list[tuple[Term, ...]] = []
+    before: tuple[Term, ...] = ()
+    for tier in analysis.tiers:
+        terms = tier.terms
+        if not before and (not terms or terms[0].variables != exposure.variables
+                           or terms[0].form != "variable"):
+            terms = (exposure,) + tuple(terms)  # the contract says tier 0 holds it; be sure
+        added.append(tuple(terms[len(before):]))
+        before = terms
+    return added
+
+
+def column_labels(plan: Plan, term: Term) -> list[str]:
+    """The design column labels of one term, without looking at data."""
+    if term.form == "variable":
+        return _variable_labels(plan.variable(term.variables[0]))
+    if term.form == "power":
+        return [f"{term.variables[0]}^{term.degree}"]
+    if term.form == "log":
+        return [f"log({term.variables[0]})"]
+    if term.form == "spline":
+        return [f"spline({term.variables[0]})[{j}]" for j in range(1, len(term.knots))]
+    combined = [""]
+    for name in term.variables:
+        sides = _variable_labels(plan.variable(name))
+        combined = [f"{a}*{b}" if a else b for a in combined for b in sides]
+    return combined
+
+
+def _variable_labels(variable: Variable) -> list[str]:
+    if variable.kind == "categorical":
+        return [f"{variable.name}={level}" for level in _other_levels(variable)]
+    return [variable.name]
+
+
+def _other_levels(variable: Variable) -> list[str]:
+    reference = variable.reference if variable.reference is not None else variable.levels[0]
+    return [level for level in variable.levels if level != reference]
+
+
+def natural_spline_columns(x: np.ndarray, knots: tuple[float, ...]) -> list[np.ndarray]:
+    """The k − 1 truncated-power columns of a natural cubic spline (formula in the module doc)."""
+    t = np.asarray(sorted(knots), dtype=np.float64)
+    k = len(t)
+    scale = (t[-1] - t[0]) ** 2
+
+    def cube(a: np.ndarray) -> np.ndarray:
+        return np.maximum(a, 0.0) ** 3
+
+    tail = cube(x - t[-2])
+    last = cube(x - t[-1])
+    span = t[-1] - t[-2]
+    columns = [x.astype(np.float64, copy=True)]
+    for j in range(k - 2):
+        columns.append((cube(x - t[j]) - tail * (t[-1] - t[j]) / span
+                        + last * (t[-2] - t[j]) / span) / scale)
+    return columns
+
+
+def cluster_codes(values: np.ndarray) -> np.ndarray:
+    """Integer codes 0 … G − 1 of the cluster values, in sorted order of the values."""
+    if values.dtype == object:
+        values = np.asarray([str(v) for v in values], dtype=object)
+    _, codes = np.unique(values, return_inverse=True)
+    return codes.astype(np.int64).reshape(-1)
+
+
+class _Builder:
+    """Reads the sample's values of each variable and turns terms into columns."""
+
+    def __init__(self, plan: Plan, columns: dict, rows: np.ndarray, row_ids: np.ndarray,
+                 analysis_id: str):
+        self.plan = plan
+        self.columns = columns
+        self.rows = rows
+        self.row_ids = np.asarray(row_ids, dtype=object)
+        self.analysis_id = analysis_id
+        self.problems: list[Problem] = []
+        self._cache: dict[str, np.ndarray] = {}
+
+    def raw(self, name: str) -> np.ndarray:
+        if name not in self._cache:
+            self._cache[name] = self.columns[name][self.rows]
+        return self._cache[name]
+
+    def numeric(self, name: str) -> np.ndarray:
+        return np.asarray(self.raw(name), dtype=np.float64)
+
+    def variable_columns(self, variable: Variable) -> list[tuple[str, np.ndarray]]:
+        if variable.kind == "categorical":
+            values = self.raw(variable.name)
+            return [(f"{variable.name}={level}", (values == level).astype(np.float64))
+                    for level in _other_levels(variable)]
+        return [(variable.name, self.numeric(variable.name))]
+
+    def term_columns(self, term: Term) -> list[tuple[str, np.ndarray]]:
+        labels = column_labels(self.plan, term)
+        name = term.variables[0]
+        if term.form == "variable":
+            return self.variable_columns(self.plan.variable(name))
+        if term.form == "power":
+            return [(labels[0], self.numeric(name) ** int(term.degree or 1))]
+        if term.form == "log":
+            return [(labels[0], np.log(self.positive(name, labels[0], self.numeric(name))))]
+        if term.form == "spline":
+            return list(zip(labels, natural_spline_columns(self.numeric(name), term.knots)))
+        combined: list[tuple[str, np.ndarray]] = [("", np.ones(len(self.rows)))]
+        for factor in term.variables:
+            sides = self.variable_columns(self.plan.variable(factor))
+            combined = [(f"{a}*{b}" if a else b, va * vb)
+                        for a, va in combined for b, vb in sides]
+        return combined
+
+    def positive(self, name: str, use: str, values: np.ndarray) -> np.ndarray:
+        """The values, with a problem recorded for each analysed row that is not positive."""
+        bad = np.flatnonzero(~(values > 0))
+        if len(bad):
+            examples = ", ".join(f"row {self.row_ids[i]} ({values[i]:g})"
+                                 for i in bad[:_EXAMPLES])
+            self.problems.append(Problem(
+                f"analysis {self.analysis_id}: {use} needs positive values, but {len(bad)} of "
+                f"{len(values)} analysed rows are zero or negative: {examples}",
+                column=name, code="not-positive",
+                hint="declare min above 0 for the variable, or use the variable without log"))
+            return np.where(values > 0, values, 1.0)  # placeholder; the pass stops anyway
+        return values
+
+    def outcome(self, variable: Variable) -> np.ndarray:
+        if variable.kind == "categorical":
+            reference = variable.reference if variable.reference is not None else variable.levels[0]
+            return (self.raw(variable.name) != reference).astype(np.float64)
+        return np.array(self.numeric(variable.name), dtype=np.float64)
+
+    def stop_if_problems(self) -> None:
+        if self.problems:
+            raise Stop(self.problems, Exit.DATA_CONTRACT)

@@ -1,0 +1,142 @@
+"""The fit pass: every tier of one analysis, the nested comparisons, the exposure across tiers
+and the report tier's diagnostics.
+
+Before any model is fitted the design is checked once: every tier needs more rows than
+parameters, and no design column may be aliased (a linear combination of the columns before
+it), found by the R factor of one Householder QR (compiler/qr.py states the tolerance).
+Both stop the run with exit 3, naming the analysis, the tier and the culprit.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .covariance import distinct_covariances
+from .fitted import AnalysisFit, Design, ExposureRow, TierFit
+from .inference import finite_or_none
+from .plan import Analysis, Plan
+from .problems import Exit, Problem, Stop
+from .qr import aliased_columns, augmented_r, rank_tolerance
+
+_NAMED = 4  # columns named in an aliasing message
+
+
+def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
+    """Fit every tier of ``analysis`` on ``design``; raises Stop (exit 3) when a tier cannot
+    be estimated at all (too few rows, aliased columns)."""
+    _check_sizes(analysis, design)
+    r = augmented_r(design.x, design.y)  # for gaussian: the whole fit; for GLM: rank and VIF
+    _check_rank(plan, analysis, design, r)
+    covariances = distinct_covariances(plan, analysis)
+    report = list(design.tier_names).index(analysis.report_tier)
+    events = None
+    if analysis.family == "gaussian":
+        from .diagnostics import gaussian_diagnostics
+        from .fit_gaussian import fit_gaussian
+
+        fitted = fit_gaussian(analysis, design, r, covariances)
+        t = fitted.numbers[report]
+        diagnostics = gaussian_diagnostics(design, analysis.report_tier, r, t.width, t.beta,
+                                           t.sigma2)
+    else:
+        from .diagnostics import glm_diagnostics
+        from .fit_glm import events as count_events, fit_glm
+
+        fitted = fit_glm(analysis, design, covariances)
+        t = fitted.numbers[report]
+        diagnostics = glm_diagnostics(design, analysis.family, analysis.report_tier, r,
+                                      t.width, t.mu, t.weights, t.rinv, t.failure)
+        if analysis.family == "binomial":
+            events = count_events(design)
+    warnings = tuple(w for tier in fitted.tiers for w in tier.warnings)
+    return AnalysisFit(
+        analysis=analysis.id, family=analysis.family, n=int(design.x.shape[0]),
+        tiers=fitted.tiers, comparisons=fitted.comparisons,
+        exposure=exposure_across_tiers(fitted.tiers, analysis.family != "gaussian"),
+        diagnostics=diagnostics, events=events, warnings=warnings)
+
+
+def exposure_across_tiers(tiers: tuple[TierFit, ...], ratio: bool) -> tuple[ExposureRow, ...]:
+    """Per tier and exposure column, the estimate under the analysis covariance and its change
+    from the first tier, (estimate − first) / |first|; exp(estimate) for binomial/poisson."""
+    first = tiers[0].exposure[0].coefficients
+    rows = []
+    for tier in tiers:
+        for j, c in enumerate(tier.exposure[0].coefficients):
+            reasons = [c.reason] if c.reason else []
+            change = None
+            base = first[j].estimate
+            if c.estimate is not None and base is not None and base != 0.0:
+                change = finite_or_none((c.estimate - base) / abs(base))
+            elif base == 0.0:
+                reasons.append("the first tier's estimate is 0: no relative change")
+            elif base is None:
+                reasons.append("the first tier's estimate could not be computed")
+            row = dict(tier=tier.name, term=c.term, estimate=c.estimate,
+                       std_error=c.std_error, ci_low=c.ci_low, ci_high=c.ci_high,
+                       change_from_first=change)
+            if ratio:
+                row.update(ratio=_exp(c.estimate), ratio_ci_low=_exp(c.ci_low),
+                           ratio_ci_high=_exp(c.ci_high))
+            rows.append(ExposureRow(**row, reason="; ".join(dict.fromkeys(reasons)) or None))
+    return tuple(rows)
+
+
+def _exp(value: float | None) -> float | None:
+    if value is None or value > 709.0:  # exp overflows double precision beyond ~709.78
+        return None
+    return finite_or_none(math.exp(value))
+
+
+def _check_sizes(analysis: Analysis, design: Design) -> None:
+    n = design.x.shape[0]
+    problems = [
+        Problem(f"analysis {analysis.id}, tier {name}: {n} analysed rows for {width} "
+                f"parameters; a fit needs more rows than parameters",
+                column=analysis.outcome, code="too-few-rows",
+                hint="check the population and the missing values in the sample flow, or "
+                     "pre-specify fewer terms", details={"n": n, "parameters": width})
+        for name, width in zip(design.tier_names, design.tier_width) if n <= width]
+    if problems:
+        raise Stop(problems, Exit.DATA_CONTRACT)
+
+
+def _check_rank(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -> None:
+    n, p = design.x.shape
+    aliased = aliased_columns(r[:p, :p], n)
+    if not aliased:
+        return
+    from .design import tier_terms
+
+    terms = {t.label: t for added in tier_terms(analysis) for t in added}
+    problems = []
+    for j in aliased:
+        tier = next(k for k, w in enumerate(design.tier_width) if w > j)
+        term = design.column_term[j]
+        variable = terms[term].variables[0] if term in terms else analysis.outcome
+        problems.append(Problem(
+            f"analysis {analysis.id}, tier {design.tier_names[tier]}: design column "
+            f"`{design.labels[j]}` (term {term}) {_combination(design, j, aliased)} in the "
+            f"{n} analysed rows, so its coefficient cannot be estimated (aliased), in this "
+            f"tier and every later one",
+            column=variable, code="aliased-column",
+            hint="drop or merge the term in the plan; aliasing is judged by an unpivoted "
+                 f"Householder QR: |R_jj| ≤ max(n, p)·ε·‖x_j‖ = {rank_tolerance(n, p):.2g}·‖x_j‖",
+            details={"tier": design.tier_names[tier], "column": design.labels[j]}))
+    raise Stop(problems, Exit.DATA_CONTRACT)
+
+
+def _combination(design: Design, j: int, aliased: list[int]) -> str:
+    """How column j depends on the columns before it, in words."""
+    column = design.x[:, j]
+    if not np.any(column):
+        return "is zero in every row (e.g. a level that never occurs)"
+    earlier = [i for i in range(j) if i not in aliased]
+    coef, *_ = np.linalg.lstsq(design.x[:, earlier], column, rcond=None)
+    weight = np.abs(coef) * np.linalg.norm(design.x[:, earlier], axis=0)
+    order = [earlier[i] for i in np.argsort(-weight) if weight[i] > 1e-8 * weight.max()]
+    named = ", ".join(f"`{design.labels[i]}`" for i in order[:_NAMED])
+    more = f" and {len(order) - _NAMED} more" if len(order) > _NAMED else ""
+    return f"is a linear combination of {named}{more}"

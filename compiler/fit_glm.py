@@ -1,0 +1,236 @@
+"""Binomial (logit) and Poisson (log) tiers through statsmodels' GLM, one fit per tier.
+
+statsmodels runs the iteration (IRLS); the covariances — classical and robust — are then
+computed here from the R factor of the weighted design W½X at the solution, by the same code
+as the gaussian ones (compiler/covariance.py). For these canonical links the classical
+covariance is (XᵀWX)⁻¹ with W = diag(V(μ)), and the Pearson residual is (y − μ)/√V(μ).
+
+What cannot be estimated is said: perfect or quasi-complete separation (statsmodels'
+PerfectSeparationWarning, or fitted probabilities numerically 0 or 1 — the test R's glm.fit
+applies, 10·ε), Poisson means numerically zero, and non-convergence leave the tier's
+coefficients and tests None with the reason, and a warning.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from .covariance import reference_df, sandwich_covariances
+from .fitted import Comparison, Design, TierFit
+from .inference import (coefficient_table, exposure_inference, finite_or_none,
+                        information_criteria, wald_test)
+from .plan import Analysis, Covariance
+from .qr import augmented_r, triangular_inverse
+
+BOUNDARY = 10.0 * np.finfo(np.float64).eps  # fitted values this close to 0 or 1
+OVERDISPERSION = 1.5  # Pearson dispersion above this is flagged (common practice)
+
+
+@dataclass(frozen=True)
+class GlmTier:
+    """The numbers of one tier the diagnostics reuse; ``failure`` says why there are none."""
+
+    width: int
+    beta: np.ndarray | None
+    mu: np.ndarray | None
+    weights: np.ndarray | None  # V(μ), the IRLS working weights at the solution
+    rinv: np.ndarray | None  # R⁻¹ of W½X
+    log_likelihood: float | None
+    failure: str | None
+
+
+@dataclass(frozen=True)
+class GlmFit:
+    tiers: tuple[TierFit, ...]
+    comparisons: tuple[Comparison, ...]
+    numbers: tuple[GlmTier, ...]
+
+
+def fit_glm(analysis: Analysis, design: Design, covariances: list[Covariance]) -> GlmFit:
+    n = design.x.shape[0]
+    clusters = int(design.cluster.max()) + 1 if design.cluster is not None and n else None
+    robust = [c for c in covariances if c.kind != "classical"]
+    null_deviance = _null_deviance(design, analysis.family)
+    tiers, numbers, sandwiches = [], [], []
+    for k, tier in enumerate(analysis.tiers):
+        number, fit_warnings = _fit_one(analysis.family, design, design.tier_width[k])
+        sandwich = _sandwich(design, number, robust)
+        numbers.append(number)
+        sandwiches.append(sandwich)
+        tiers.append(_tier_fit(analysis, design, tier, k, number, covariances, clusters,
+                               fit_warnings, sandwich, null_deviance))
+    comparisons = tuple(
+        _compare(analysis, numbers[k - 1], numbers[k], tiers[k - 1], tiers[k],
+                 sandwiches[k])
+        for k in range(1, len(numbers)))
+    return GlmFit(tuple(tiers), comparisons, tuple(numbers))
+
+
+def _family(name: str):
+    import statsmodels.api as sm
+
+    return sm.families.Binomial() if name == "binomial" else sm.families.Poisson()
+
+
+def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str]]:
+    import statsmodels.api as sm
+    from statsmodels.tools.sm_exceptions import PerfectSeparationError
+
+    x = design.x[:, :width]
+    notes: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            result = sm.GLM(design.y, x, family=_family(family), offset=design.offset).fit()
+        except PerfectSeparationError:
+            return GlmTier(width, None, None, None, None, None, _SEPARATION), [_SEPARATION]
+        except (np.linalg.LinAlgError, ValueError, FloatingPointError) as error:
+            failure = f"the fit failed: {error}"
+            return GlmTier(width, None, None, None, None, None, failure), [failure]
+    separated = any("PerfectSeparation" in type(w.message).__name__ for w in caught)
+    for w in caught:
+        text = str(w.message)
+        if "PerfectSeparation" not in type(w.message).__name__ and text not in notes:
+            notes.append(text)
+    mu = np.asarray(result.mu, dtype=np.float64)
+    if family == "binomial":
+        separated = separated or bool(np.any(np.minimum(mu, 1.0 - mu) < BOUNDARY))
+        weights = mu * (1.0 - mu)
+    else:
+        weights = mu.copy()
+    failure = None
+    if separated:
+        failure = _SEPARATION if family == "binomial" else _ZERO_MEANS
+    elif not result.converged:
+        failure = f"the fit did not converge in {result.fit_history['iteration']} iterations"
+    elif family == "poisson" and np.any(mu < BOUNDARY):
+        failure = _ZERO_MEANS
+    rinv = None
+    if failure is None:
+        r = augmented_r(x, np.zeros(len(mu)), weights=weights)
+        if np.any(np.abs(np.diag(r)[:width]) == 0.0):
+            failure = "the weighted design is singular at the solution"
+        else:
+            rinv = triangular_inverse(r[:width, :width])
+    if failure:
+        notes.insert(0, failure)
+    llf = finite_or_none(result.llf)
+    beta = np.asarray(result.params, dtype=np.float64)
+    return GlmTier(width, beta, mu, weights, rinv, llf, failure), notes
+
+
+_SEPARATION = ("perfect or quasi-complete separation: fitted probabilities are numerically 0 "
+               "or 1, so the maximum-likelihood estimates do not exist")
+_ZERO_MEANS = ("fitted means numerically zero (e.g. a group with no events): the "
+               "maximum-likelihood estimates do not exist")
+
+
+def _statistics(design: Design, t: GlmTier, family: str):
+    """Deviance, null deviance and Pearson χ² of one tier, by statsmodels' family formulas."""
+    fam = _family(family)
+    y = design.y
+    deviance = float(fam.deviance(y, t.mu))
+    pearson = float(np.sum((y - t.mu) ** 2 / fam.variance(t.mu)))
+    return deviance, pearson
+
+
+def _null_deviance(design: Design, family: str) -> float | None:
+    import statsmodels.api as sm
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            null = sm.GLM(design.y, np.ones((len(design.y), 1)), family=_family(family),
+                          offset=design.offset).fit()
+        except Exception:  # the null model is a courtesy figure; its failure is not the fit's
+            return None
+    return finite_or_none(null.deviance)
+
+
+def _sandwich(design: Design, t: GlmTier, robust: list[Covariance]) -> dict:
+    if t.failure is not None or not robust:
+        return {}
+    root_w = np.sqrt(t.weights)
+    pearson = (design.y - t.mu) / root_w
+    return sandwich_covariances(design.x[:, :t.width], t.rinv, [t.width], [pearson], robust,
+                                design.cluster, root_w)[0]
+
+
+def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
+              notes: list[str], sandwich: dict, null_deviance: float | None) -> TierFit:
+    from .design import tier_terms
+
+    n = design.x.shape[0]
+    labels = design.labels[:t.width]
+    df_resid = n - t.width
+    usable = t.failure is None
+    inferences, table = [], None
+    for covariance in covariances:
+        cov = None
+        if usable:
+            cov = t.rinv @ t.rinv.T if covariance.kind == "classical" else sandwich.get(
+                covariance.label)
+        df = reference_df(covariance, analysis.family, df_resid, clusters)
+        estimates = t.beta if usable else None
+        inferences.append(exposure_inference(covariance.label, labels, estimates, cov,
+                                             design.exposure_columns, df, analysis.confidence,
+                                             "Wald", t.failure))
+        if table is None:
+            table = coefficient_table(labels, estimates, cov, df, analysis.confidence,
+                                      t.failure)
+    deviance = pearson_chi2 = dispersion = None
+    warned = list(notes)
+    if t.mu is not None:
+        deviance, pearson_chi2 = _statistics(design, t, analysis.family)
+        dispersion = pearson_chi2 / df_resid if df_resid > 0 else None
+        if analysis.family == "poisson" and dispersion is not None and \
+                dispersion > OVERDISPERSION:
+            warned.append(f"Pearson dispersion {dispersion:.3g} is above {OVERDISPERSION} "
+                          "(common practice): the counts look over-dispersed")
+    aic, bic = information_criteria(t.log_likelihood, n, t.width)
+    return TierFit(
+        name=tier.name, terms_added=tuple(term.label for term in tier_terms(analysis)[k]),
+        n=n, n_parameters=t.width, df_resid=df_resid, log_likelihood=t.log_likelihood,
+        aic=aic, bic=bic, coefficients=table, exposure=tuple(inferences),
+        deviance=finite_or_none(deviance), null_deviance=null_deviance, pearson_chi2=finite_or_none(pearson_chi2),
+        dispersion=finite_or_none(dispersion), converged=t.failure is None or
+        not t.failure.startswith("the fit did not converge"),
+        reason=t.failure, warnings=tuple(f"tier {tier.name}: {w}" for w in warned))
+
+
+def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit: TierFit,
+             sandwich: dict) -> Comparison:
+    """Classical: the likelihood ratio 2(ℓ_big − ℓ_small) on χ²(df_added). Robust: the Wald
+    χ² of the added columns under the larger tier's robust covariance."""
+    from scipy import stats
+
+    df_added = big.width - small.width
+    covariance = analysis.covariance
+    test = "LR" if covariance.kind == "classical" else "Wald"
+    failed = small.failure or big.failure
+    if failed:
+        tier = small_fit.name if small.failure else big_fit.name
+        return Comparison(small_fit.name, big_fit.name, test, df_added, None, None, None,
+                          f"tier {tier}: {failed}")
+    if df_added == 0:
+        return Comparison(small_fit.name, big_fit.name, test, 0, None, None, None,
+                          "the larger tier adds no design columns")
+    if test == "Wald":
+        joint = wald_test(big.beta, sandwich.get(covariance.label),
+                          range(small.width, big.width), None, "Wald")
+        return Comparison(small_fit.name, big_fit.name, "Wald", df_added, joint.statistic,
+                          joint.p_value, None, joint.reason)
+    if small.log_likelihood is None or big.log_likelihood is None:
+        return Comparison(small_fit.name, big_fit.name, "LR", df_added, None, None, None,
+                          "a log-likelihood is not finite")
+    lr = max(2.0 * (big.log_likelihood - small.log_likelihood), 0.0)  # negative: rounding
+    return Comparison(small_fit.name, big_fit.name, "LR", df_added, finite_or_none(lr),
+                      finite_or_none(stats.chi2.sf(lr, df_added)))
+
+
+def events(design: Design) -> int:
+    return int(np.sum(design.y == 1.0))
+

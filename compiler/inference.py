@@ -1,0 +1,120 @@
+"""Shared inference: coefficient tables, Wald tests and the finite-or-None rule.
+
+Every number leaving the fit passes through :func:`finite_or_none`, so NaN and ±∞ never
+reach the results: a value that cannot be computed is None, and a reason goes beside it.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .fitted import Coefficient, ExposureInference, JointTest
+
+
+def finite_or_none(value) -> float | None:
+    """A plain float, or None when the value is missing, NaN or infinite."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def critical_value(confidence: float, df: float | None) -> float:
+    """The two-sided quantile: t on ``df`` degrees of freedom, or the normal when df is None."""
+    from scipy import stats
+
+    upper = 0.5 + confidence / 2.0
+    return float(stats.norm.ppf(upper) if df is None else stats.t.ppf(upper, df))
+
+
+def two_sided_p(statistic: float, df: float | None) -> float:
+    from scipy import stats
+
+    a = abs(statistic)
+    return float(2.0 * (stats.norm.sf(a) if df is None else stats.t.sf(a, df)))
+
+
+def coefficient_table(labels, estimates, cov, df: float | None, confidence: float,
+                      reason: str | None = None) -> tuple[Coefficient, ...]:
+    """One row per coefficient from the estimates and their covariance matrix.
+
+    ``reason`` given: the inferential columns are None for that reason (e.g. an exact fit);
+    a row whose standard error is not a positive finite number gets None likewise.
+    """
+    q = critical_value(confidence, df)
+    rows = []
+    for j, label in enumerate(labels):
+        estimate = finite_or_none(estimates[j]) if estimates is not None else None
+        variance = None if cov is None or reason else finite_or_none(cov[j, j])
+        if estimate is None or variance is None or variance <= 0.0:
+            why = reason or ("the estimate is not finite" if estimate is None
+                             else "the standard error is not a positive finite number")
+            rows.append(Coefficient(label, estimate, None, None, None, None, None, why))
+            continue
+        se = math.sqrt(variance)
+        statistic = estimate / se
+        rows.append(Coefficient(
+            label, estimate, se, finite_or_none(statistic),
+            finite_or_none(two_sided_p(statistic, df)),
+            finite_or_none(estimate - q * se), finite_or_none(estimate + q * se)))
+    return tuple(rows)
+
+
+def wald_test(estimates, cov, columns, df: float | None, test: str) -> JointTest:
+    """Joint test that the coefficients in ``columns`` are all zero.
+
+    W = bᵀ V⁻¹ b. With ``df`` given the F form W / q on (q, df) is reported (used for
+    gaussian fits, classical — where it equals the nested-model F exactly — or robust);
+    with df None, W itself on χ²(q) (GLM).
+    """
+    from scipy import stats
+
+    columns = list(columns)
+    q = len(columns)
+    if estimates is None or cov is None:
+        return JointTest(test, q, df, None, None, "the coefficients could not be estimated")
+    b = np.asarray(estimates, dtype=np.float64)[columns]
+    v = np.asarray(cov, dtype=np.float64)[np.ix_(columns, columns)]
+    if not (np.all(np.isfinite(b)) and np.all(np.isfinite(v))):
+        return JointTest(test, q, df, None, None, "the covariance matrix is not finite")
+    try:
+        factor = np.linalg.cholesky(v)
+    except np.linalg.LinAlgError:
+        return JointTest(test, q, df, None, None,
+                         "the covariance of the tested coefficients is singular")
+    from scipy.linalg import solve_triangular
+
+    w = float(np.sum(solve_triangular(factor, b, lower=True) ** 2))
+    if df is None:
+        return JointTest(test, q, None, finite_or_none(w), finite_or_none(stats.chi2.sf(w, q)))
+    f = w / q
+    return JointTest(test, q, float(df), finite_or_none(f), finite_or_none(stats.f.sf(f, q, df)))
+
+
+def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns,
+                       df: float | None, confidence: float, joint_test: str,
+                       reason: str | None = None) -> ExposureInference:
+    """The exposure's coefficients under one covariance, with the joint test when the exposure
+    has several columns."""
+    columns = list(exposure_columns)
+    table = coefficient_table([labels[j] for j in columns],
+                              None if estimates is None else np.asarray(estimates)[columns],
+                              None if cov is None else np.asarray(cov)[np.ix_(columns, columns)],
+                              df, confidence, reason)
+    joint = None
+    if len(columns) > 1:
+        joint = (JointTest(joint_test, len(columns), df, None, None, reason) if reason
+                 else wald_test(estimates, cov, columns, df, joint_test))
+    return ExposureInference(covariance, table, None if df is None else float(df), joint)
+
+
+def information_criteria(log_likelihood: float | None, n: int, p: int):
+    """(AIC, BIC) counting the p coefficients only — statsmodels' convention for OLS and GLM
+    (its aic = −2ℓ + 2p, bic_llf = −2ℓ + log(n)·p), so the numbers cross-check; the gaussian
+    σ² is not counted as a parameter."""
+    if log_likelihood is None:
+        return None, None
+    return (finite_or_none(-2.0 * log_likelihood + 2.0 * p),
+            finite_or_none(-2.0 * log_likelihood + math.log(n) * p))
