@@ -41,3 +41,5 @@ class AssumptionOutcome:
     triggered: bool
     covariance: str  # the covariance the named decisions used
     reason: str
+    determined: bool = True  # False: the statistic could not be computed; decisions undetermined
+    tier: str | None = None  # the tier the check was judged on

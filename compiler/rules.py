@@ -1,0 +1,303 @@
+"""Each kind of decision rule, evaluated on one analysis' fit at a given α.
+
+Every evaluation returns a :class:`Finding`: the verdict on its own (before any multiplicity
+procedure), a one-sentence reason, the numbers behind it, and the p-value a multiplicity
+procedure should use. `decide` chooses the covariance and the α, and applies the families.
+
+Scales: a gaussian effect is a difference; a binomial or Poisson effect is a log odds or
+log rate ratio, with the ratio reported beside it. Margins for ratios are given as ratios
+and compared on the log scale.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+from scipy import stats
+
+from .fitted import AnalysisFit, Coefficient, ExposureInference
+from .plan import Analysis, Decision
+from .rules_text import (RATIO, SCALE, finite, fmt_alpha, fmt_num, fmt_p, fmt_p_phrase,
+                         fmt_percent, level_percent)
+from .verdicts import VerdictWord
+
+# Every verdict carries these keys, None where they do not apply, so consumers see one shape.
+NUMBER_KEYS = ("estimate", "std_error", "ci_low", "ci_high", "ci_level", "statistic",
+               "p_value", "adjusted_p", "alpha_used", "margin", "scale", "covariance", "df",
+               "ratio", "ratio_ci_low", "ratio_ci_high")
+
+
+@dataclass(frozen=True)
+class Finding:
+    verdict: VerdictWord
+    reason: str
+    numbers: dict = field(default_factory=dict)
+    p_value: float | None = None  # what a multiplicity procedure uses
+    p_name: str = "p"  # how reasons name that p: "two-sided p", "TOST p", ...
+
+
+def base_numbers(analysis: Analysis) -> dict:
+    numbers: dict = dict.fromkeys(NUMBER_KEYS)
+    numbers["scale"] = SCALE[analysis.family]
+    return numbers
+
+
+def _ref(df: float | None):
+    """The reference distribution: t on ``df`` degrees of freedom, or the standard normal."""
+    return stats.norm if df is None else stats.t(df)
+
+
+def _exp(x: float | None) -> float | None:
+    if x is None:
+        return None
+    try:
+        return finite(math.exp(x))
+    except OverflowError:
+        return None
+
+
+def _undetermined(reason: str, numbers: dict) -> Finding:
+    return Finding("undetermined", reason, numbers)
+
+
+def _effect_summary(analysis: Analysis, term: str, numbers: dict) -> str:
+    level = level_percent(numbers["ci_level"])
+    if analysis.family == "gaussian":
+        return (f"difference {term} {fmt_num(numbers['estimate'])}, {level} CI "
+                f"{fmt_num(numbers['ci_low'])} to {fmt_num(numbers['ci_high'])}")
+    return (f"{RATIO[analysis.family]} {term} {fmt_num(numbers['ratio'])}, {level} CI "
+            f"{fmt_num(numbers['ratio_ci_low'])} to {fmt_num(numbers['ratio_ci_high'])}")
+
+
+def _coefficient(inference: ExposureInference, term: str, numbers: dict
+                 ) -> tuple[Coefficient | None, str | None]:
+    """The term's coefficient with a usable estimate and standard error, or why not."""
+    coef = next((c for c in inference.coefficients if c.term == term), None)
+    if coef is None:
+        return None, f"the fit holds no coefficient {term} under {inference.covariance} covariance"
+    numbers.update(estimate=finite(coef.estimate), std_error=finite(coef.std_error),
+                   covariance=inference.covariance, df=finite(inference.df))
+    if numbers["estimate"] is None or numbers["std_error"] is None or coef.std_error <= 0:
+        why = f": {coef.reason}" if coef.reason else ""
+        return None, f"the {term} estimate or its standard error could not be computed{why}"
+    return coef, None
+
+
+def _interval(numbers: dict, analysis: Analysis, coverage: float, df: float | None) -> None:
+    """Fill ci_low/ci_high (and the ratios) with the two-sided ``coverage`` interval."""
+    q = float(_ref(df).ppf(0.5 + coverage / 2))
+    est, se = numbers["estimate"], numbers["std_error"]
+    numbers.update(ci_level=coverage, ci_low=finite(est - q * se), ci_high=finite(est + q * se))
+    if analysis.family != "gaussian":
+        numbers.update(ratio=_exp(est), ratio_ci_low=_exp(numbers["ci_low"]),
+                       ratio_ci_high=_exp(numbers["ci_high"]))
+
+
+def _one_sided_p(statistic: float, direction: str, df: float | None) -> float:
+    """H1: effect > null for ``higher`` (upper tail), effect < null for ``lower``."""
+    ref = _ref(df)
+    return float(ref.sf(statistic) if direction == "higher" else ref.cdf(statistic))
+
+
+def superiority(analysis: Analysis, decision: Decision, inference: ExposureInference,
+                term: str | None, alpha: float) -> Finding:
+    numbers = base_numbers(analysis)
+    numbers.update(alpha_used=alpha, covariance=inference.covariance)
+    if term is None:
+        return _joint_superiority(analysis, inference, alpha, numbers)
+    coef, why = _coefficient(inference, term, numbers)
+    if coef is None:
+        return _undetermined(why, numbers)
+    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
+    statistic = finite(coef.statistic) if coef.statistic is not None else finite(est / se)
+    if statistic is None:
+        return _undetermined(f"the {term} test statistic could not be computed", numbers)
+    if decision.direction == "two-sided":
+        p = finite(coef.p_value)
+        if p is None:
+            p = finite(2 * float(_ref(df).sf(abs(statistic))))
+        name, coverage = "two-sided p", 1 - alpha
+    else:
+        p = finite(_one_sided_p(statistic, decision.direction, df))
+        name, coverage = f"one-sided p ({decision.direction})", 1 - 2 * alpha
+    numbers.update(statistic=statistic, p_value=p)
+    _interval(numbers, analysis, coverage, df)
+    if p is None:
+        return _undetermined(f"the {name} for {term} could not be computed", numbers)
+    below = p < alpha
+    reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
+              f"{fmt_alpha(alpha)} ({_effect_summary(analysis, term, numbers)})")
+    return Finding("supported" if below else "not supported", reason, numbers, p, name)
+
+
+def _joint_superiority(analysis: Analysis, inference: ExposureInference, alpha: float,
+                       numbers: dict) -> Finding:
+    joint = inference.joint
+    if joint is None or joint.p_value is None or finite(joint.p_value) is None:
+        why = f": {joint.reason}" if joint is not None and joint.reason else ""
+        return _undetermined(f"the joint test of {analysis.exposure} could not be computed"
+                             f"{why}", numbers)
+    p = float(joint.p_value)
+    numbers.update(statistic=finite(joint.statistic), p_value=p, df=joint.df,
+                   df_denominator=finite(joint.df_denominator), joint_test=joint.test)
+    name = f"joint {joint.test} test of {analysis.exposure} ({joint.df} df): p"
+    below = p < alpha
+    reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
+              f"{fmt_alpha(alpha)} under {inference.covariance} covariance")
+    return Finding("supported" if below else "not supported", reason, numbers, p, "joint p")
+
+
+def _to_analysis_scale(analysis: Analysis, value: float) -> float:
+    return value if analysis.family == "gaussian" else math.log(value)
+
+
+def _bound_words(analysis: Analysis, value: float | None) -> str:
+    return fmt_num(value if analysis.family == "gaussian" else _exp(value))
+
+
+def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureInference,
+                    term: str | None, alpha: float) -> Finding:
+    numbers = base_numbers(analysis)
+    numbers.update(alpha_used=alpha, covariance=inference.covariance, margin=decision.margin)
+    if term is None or decision.direction == "two-sided" or decision.margin is None:
+        return _undetermined("a non-inferiority rule needs one exposure column, a margin and "
+                             "a direction (higher or lower)", numbers)
+    coef, why = _coefficient(inference, term, numbers)
+    if coef is None:
+        return _undetermined(why, numbers)
+    margin = _to_analysis_scale(analysis, decision.margin)
+    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
+    statistic = finite((est - margin) / se)
+    p = None if statistic is None else finite(_one_sided_p(statistic, decision.direction, df))
+    numbers.update(statistic=statistic, p_value=p, margin_analysis_scale=margin)
+    _interval(numbers, analysis, 1 - 2 * alpha, df)
+    if decision.direction == "higher":
+        end, bound, word = "lower", numbers["ci_low"], "above"
+        cleared = bound is not None and bound > margin
+    else:
+        end, bound, word = "upper", numbers["ci_high"], "below"
+        cleared = bound is not None and bound < margin
+    numbers["bound"] = bound
+    if bound is None:
+        return _undetermined(f"the {end} end of the interval for {term} could not be "
+                             f"computed", numbers)
+    what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
+    reason = (f"the {end} end of the {level_percent(1 - 2 * alpha)} interval for the {what} "
+              f"{term}, {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
+              f"{word} the margin {fmt_num(decision.margin)} "
+              f"(non-inferiority p = {fmt_p(p)}, α = {fmt_alpha(alpha)})")
+    return Finding("supported" if cleared else "not supported", reason, numbers, p,
+                   "non-inferiority p")
+
+
+def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInference,
+                term: str | None, alpha: float) -> Finding:
+    numbers = base_numbers(analysis)
+    numbers.update(alpha_used=alpha, covariance=inference.covariance,
+                   margins=list(decision.margins) if decision.margins else None)
+    if term is None or decision.margins is None:
+        return _undetermined("an equivalence rule needs one exposure column and two margins",
+                             numbers)
+    coef, why = _coefficient(inference, term, numbers)
+    if coef is None:
+        return _undetermined(why, numbers)
+    low, high = (_to_analysis_scale(analysis, m) for m in decision.margins)
+    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
+    ref = _ref(df)
+    # two one-sided tests: H1 effect > low, and H1 effect < high
+    p_low = finite(float(ref.sf((est - low) / se)))
+    p_high = finite(float(ref.cdf((est - high) / se)))
+    p = None if p_low is None or p_high is None else max(p_low, p_high)
+    numbers.update(p_value=p, p_lower_margin=p_low, p_upper_margin=p_high,
+                   margins_analysis_scale=[low, high])
+    _interval(numbers, analysis, 1 - 2 * alpha, df)
+    ci_low, ci_high = numbers["ci_low"], numbers["ci_high"]
+    if ci_low is None or ci_high is None or p is None:
+        return _undetermined(f"the interval for {term} could not be computed", numbers)
+    inside = low < ci_low and ci_high < high
+    what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
+    reason = (f"the {level_percent(1 - 2 * alpha)} interval for the {what} {term}, "
+              f"{_bound_words(analysis, ci_low)} to {_bound_words(analysis, ci_high)}, "
+              f"{'lies' if inside else 'does not lie'} inside the margins "
+              f"{fmt_num(decision.margins[0])} to {fmt_num(decision.margins[1])} "
+              f"(TOST p = {fmt_p(p)}, α = {fmt_alpha(alpha)})")
+    return Finding("supported" if inside else "not supported", reason, numbers, p, "TOST p")
+
+
+def tier_selection(analysis: Analysis, decision: Decision, fit: AnalysisFit) -> Finding:
+    """Walk the successive comparisons; needed additions extend the selected tier until the
+    first addition that is not needed."""
+    alpha = decision.alpha
+    names = [t.name for t in analysis.tiers]
+    numbers = base_numbers(analysis)
+    numbers.update(alpha_used=alpha, report_tier=analysis.report_tier, scale=None)
+    walked, selected, broken, missing = [], names[0], False, None
+    words: list[str] = []
+    for reduced, larger in zip(names, names[1:]):
+        comparison = next((c for c in fit.comparisons
+                           if c.from_tier == reduced and c.to_tier == larger), None)
+        p = None if comparison is None else finite(comparison.p_value)
+        needed = None if p is None else p < alpha
+        walked.append({"from": reduced, "to": larger, "p_value": p, "needed": needed,
+                       "test": None if comparison is None else comparison.test})
+        if broken:
+            continue
+        if p is None:
+            missing = (reduced, larger, comparison.reason if comparison is not None else None)
+            broken = True
+        elif needed:
+            selected = larger
+            words.append(f"the additions of {larger} were needed ({fmt_p_phrase('p', p)})")
+        else:
+            broken = True
+            words.append(f"those of {larger} were not ({fmt_p_phrase('p', p)} is not below "
+                         f"α = {fmt_alpha(alpha)})")
+    numbers["comparisons"] = walked
+    if missing is not None:
+        numbers.update(selected_tier=None, agrees=None)
+        why = f": {missing[2]}" if missing[2] else ""
+        return _undetermined(f"the comparison of {missing[0]} with {missing[1]} has no p-value"
+                             f"{why}, so the walk cannot go on", numbers)
+    agrees = selected == analysis.report_tier
+    numbers.update(selected_tier=selected, agrees=agrees)
+    walk = "; ".join(words) if words else "the analysis has a single tier"
+    if agrees:
+        tail = f"agrees with the pre-specified report tier {analysis.report_tier}"
+    else:
+        tail = (f"differs from the pre-specified report tier {analysis.report_tier}; this is "
+                f"a reported check, and the primary analysis stays on {analysis.report_tier}")
+    reason = f"{walk}; the nested tests select tier {selected}, which {tail}"
+    return Finding("supported" if agrees else "not supported", reason, numbers)
+
+
+def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
+                       term: str | None) -> Finding:
+    """Relative change of the exposure estimate (on the analysis scale) between two tiers."""
+    numbers = base_numbers(analysis)
+    numbers.update(threshold=decision.threshold, from_tier=decision.from_tier,
+                   estimate_from=None, change=None, flagged=None)
+    if term is None:
+        return _undetermined(f"{analysis.exposure} has several levels: a change-in-estimate "
+                             f"rule must name one", numbers)
+    estimates = []
+    for tier in (decision.from_tier, decision.tier):
+        coef = next((c for c in fit.tier(tier).coefficients if c.term == term), None)
+        estimates.append(None if coef is None else finite(coef.estimate))
+    start, end = estimates
+    numbers.update(estimate_from=start, estimate=end)
+    if start is None or end is None:
+        return _undetermined(f"the {term} estimate is not available in both tiers "
+                             f"{decision.from_tier} and {decision.tier}", numbers)
+    if start == 0:
+        return _undetermined(f"the {term} estimate in tier {decision.from_tier} is exactly 0, "
+                             f"so a relative change is not defined", numbers)
+    change = (end - start) / abs(start)
+    flagged = abs(change) > decision.threshold
+    numbers.update(change=finite(change), flagged=flagged)
+    verdict_words = ("confounding flagged" if flagged else "no confounding flagged")
+    reason = (f"the {term} estimate ({SCALE[analysis.family]}) moved from {fmt_num(start)} in "
+              f"{decision.from_tier} to {fmt_num(end)} in {decision.tier}, a change of "
+              f"{fmt_percent(change)} whose size {'exceeds' if flagged else 'does not exceed'} "
+              f"the {fmt_percent(decision.threshold)} threshold: {verdict_words}")
+    return Finding("supported" if flagged else "not supported", reason, numbers)
