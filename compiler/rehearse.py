@@ -86,7 +86,13 @@ def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table
     order = np.random.default_rng(seed).permutation(table.rows_read)
     columns = dict(table.columns)
     columns[variable] = table.columns[variable][order]
-    return replace(table, columns=columns)
+    changes: dict = {"columns": columns}
+    cached = getattr(table, "codes", {})
+    if variable in cached:  # read's category codes must follow the values they stand for
+        codes, values = cached[variable]
+        changes["codes"] = {**cached, variable: (codes[order], values)}
+    # Unparsed-value findings keep their positions in the real file, where the analyst looks.
+    return replace(table, **changes)
 
 
 def table_csv(plan: Plan, columns: dict[str, np.ndarray]) -> bytes:

@@ -424,3 +424,13 @@ def test_scrambling_an_unknown_column_stops_with_exit_2(name, said):
         scrambled_table(make_plan(), real_table(), name, seed=1)
     assert caught.value.exit_code == Exit.PLAN_INVALID
     assert said in caught.value.problems[0].message and name in caught.value.problems[0].message
+
+
+def test_scrambling_moves_reads_category_codes_with_the_values():
+    table = real_table()
+    codes, values = pd.factorize(table.columns["arm"])
+    table = Table(table.path, table.format, table.sha256, table.size_bytes, table.rows_read,
+                  table.columns, codes={"arm": (codes.astype(np.int32), tuple(values))})
+    scrambled = scrambled_table(make_plan(), table, "arm", seed=3)
+    codes, values = scrambled.categories("arm")
+    assert list(np.asarray(values, dtype=object)[codes]) == list(scrambled.columns["arm"])
