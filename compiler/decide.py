@@ -18,7 +18,7 @@ from .multiplicity import Adjusted, adjust
 from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
 from .rules import Finding, base_numbers, change_in_estimate, equivalence, non_inferiority
 from .rules import superiority, tier_selection
-from .rules_text import METHOD_NAME, exposure_term, finite, fmt_alpha, fmt_num, fmt_p
+from .rules_text import METHOD_NAME, exposure_term, finite, fmt_alpha, fmt_num
 from .rules_text import fmt_p_phrase
 from .verdicts import AssumptionOutcome, Verdict
 
@@ -254,7 +254,7 @@ def _family_reason(decision: Decision, finding: Finding, family: Multiplicity, s
         stopper = family.decisions[step.stopped_by]
         return (f"not tested: the fixed sequence stopped at {stopper}, which was not rejected "
                 f"({own})")
-    verdict_tail = (f"adjusted p = {fmt_p(step.adjusted_p)} "
+    verdict_tail = (f"{fmt_p_phrase('adjusted p', step.adjusted_p)} "
                     f"{'<' if step.rejected else '≥'} {alpha}")
     held = fmt_alpha(step.alpha_used)
     below_own = finding.p_value is not None and finding.p_value < step.alpha_used

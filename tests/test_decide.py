@@ -376,3 +376,9 @@ def test_undetermined_member_counts_as_not_rejected_and_others_say_so():
 def test_decide_is_deterministic():
     first, second = _family("holm", (2.6, 2.1)), _family("holm", (2.6, 2.1))
     assert first == second
+
+
+def test_member_undetermined_by_minimum_information_is_counted_as_not_rejected():
+    verdicts = _family("holm", (4.0, 4.0), mi=MinimumInformation(n=500))
+    assert [v.verdict for v in verdicts] == ["undetermined", "undetermined"]
+    assert "counted as not rejected in the Holm family" in verdicts[0].reason
