@@ -1,0 +1,150 @@
+"""Seal a bundle: write every artifact and the manifest at once, or write nothing.
+
+The bundle is written into a temporary folder beside the target (``.NAME.tmp-PID-HEX`` in
+the same parent, so the rename stays on one file system), every file fsynced and made
+read-only (0444), then renamed into place in one step. A crash before the rename leaves no
+bundle, only the temporary folder, which the next seal into the same parent removes once the
+process that wrote it is gone. The bundle folder itself stays writable, so that ``rm -r``
+works without a chmod; an added file is caught by ``prespec verify``.
+
+An existing target is never overwritten: the run stops with exit 2 before any work.
+
+manifest.json (canonical JSON, compiler.canonical) lists every other file with its size and
+sha256, the plan, data and results digests, the environment, the stamp, the run time (the
+only wall-clock time in a bundle), an optional signature record, and ``manifest_sha256``:
+the digest of the manifest's canonical bytes without that field. With a signing key, the
+Ed25519 signature of the exact bytes of manifest.json is written, raw (64 bytes), to
+manifest.sig; it checks with ``openssl pkeyutl -verify -pubin -inkey PUB -rawin
+-in manifest.json -sigfile manifest.sig``.
+
+Test hook: when ``PRESPEC_TEST_PAUSE_BEFORE_SEAL`` holds a number of seconds, sealing sleeps
+that long after the temporary folder is complete and before the rename, so a test can kill
+the run at its most delicate moment. It is read here only.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import secrets
+import shutil
+import time
+from pathlib import Path
+
+from .canonical import canonical_bytes, digest, sha256_hex
+from .problems import Exit, Problem, Stop
+
+MANIFEST = "manifest.json"
+SIGNATURE = "manifest.sig"
+MANIFEST_FORMAT = "prespec-manifest/1"
+PAUSE_HOOK = "PRESPEC_TEST_PAUSE_BEFORE_SEAL"
+
+
+def refuse_existing(target: Path) -> None:
+    if target.exists() or target.is_symlink():
+        raise Stop([Problem(f"bundle {target} exists; bundles are never overwritten — "
+                            "choose another --out", code="bundle-exists")], Exit.PLAN_INVALID)
+
+
+def load_signing_key(path: str | Path):
+    """An Ed25519 private key from a PEM file (unencrypted); exit 2 when it is not one."""
+    from cryptography.hazmat.primitives import serialization
+    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
+
+    try:
+        key = serialization.load_pem_private_key(Path(path).read_bytes(), password=None)
+    except (OSError, ValueError, TypeError) as exc:
+        raise Stop([Problem(f"{path}: cannot read the signing key: {exc}",
+                            hint="give an unencrypted Ed25519 private key in PEM form, e.g. "
+                                 "from `openssl genpkey -algorithm ed25519`",
+                            code="bad-key")], Exit.PLAN_INVALID) from None
+    if not isinstance(key, Ed25519PrivateKey):
+        raise Stop([Problem(f"{path}: the signing key is not an Ed25519 key", code="bad-key")],
+                   Exit.PLAN_INVALID)
+    return key
+
+
+def public_key_sha256(public_key) -> str:
+    from cryptography.hazmat.primitives import serialization
+
+    raw = public_key.public_bytes(serialization.Encoding.Raw, serialization.PublicFormat.Raw)
+    return sha256_hex(raw)
+
+
+def manifest_digest(manifest: dict) -> str:
+    return digest({k: v for k, v in manifest.items() if k != "manifest_sha256"})
+
+
+def seal(target: Path, files: dict[str, bytes], about: dict, *, run_at: str,
+         key=None) -> dict:
+    """Write ``files`` and their manifest as the bundle ``target``; return the manifest.
+
+    ``about`` holds the manifest's description of the run (plan, data, results digests,
+    environment, stamp); it is merged into the manifest as given.
+    """
+    target = Path(target)
+    refuse_existing(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    _remove_stale(target)
+    temporary = target.parent / f".{target.name}.tmp-{os.getpid()}-{secrets.token_hex(4)}"
+    temporary.mkdir()
+    try:
+        for name, data in sorted(files.items()):
+            _write(temporary / name, data)
+        manifest = {"format": MANIFEST_FORMAT, **about, "run_at": run_at,
+                    "files": [{"path": name, "size": len(data), "sha256": sha256_hex(data)}
+                              for name, data in sorted(files.items())],
+                    "signature": None if key is None else {
+                        "file": SIGNATURE, "algorithm": "Ed25519",
+                        "public_key_sha256": public_key_sha256(key.public_key())}}
+        manifest["manifest_sha256"] = manifest_digest(manifest)
+        manifest_bytes = canonical_bytes(manifest)
+        _write(temporary / MANIFEST, manifest_bytes)
+        if key is not None:
+            _write(temporary / SIGNATURE, key.sign(manifest_bytes))
+        _fsync_folder(temporary)
+        pause = os.environ.get(PAUSE_HOOK)
+        if pause:
+            time.sleep(float(pause))
+        refuse_existing(target)  # someone may have written it while we worked
+        os.rename(temporary, target)
+    except BaseException:
+        shutil.rmtree(temporary, ignore_errors=True)
+        raise
+    _fsync_folder(target.parent)
+    return manifest
+
+
+def _write(path: Path, data: bytes) -> None:
+    with open(path, "xb") as handle:
+        handle.write(data)
+        handle.flush()
+        os.fsync(handle.fileno())
+    os.chmod(path, 0o444)
+
+
+def _fsync_folder(folder: Path) -> None:
+    descriptor = os.open(folder, os.O_RDONLY)
+    try:
+        os.fsync(descriptor)
+    finally:
+        os.close(descriptor)
+
+
+def _remove_stale(target: Path) -> None:
+    """Remove temporary folders of this bundle left by runs that died before renaming."""
+    pattern = re.compile(rf"\.{re.escape(target.name)}\.tmp-(\d+)-[0-9a-f]+\Z")
+    for entry in target.parent.iterdir():
+        found = pattern.match(entry.name)
+        if found and entry.is_dir() and not _alive(int(found.group(1))):
+            shutil.rmtree(entry, ignore_errors=True)
+
+
+def _alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
