@@ -44,8 +44,11 @@ class GaussianFit:
 
 
 def fit_gaussian(analysis: Analysis, design: Design, r: np.ndarray,
-                 covariances: list[Covariance]) -> GaussianFit:
-    """Every tier of a gaussian analysis; ``r`` is the R factor of [X | y] (rank checked)."""
+                 covariances: list[Covariance], sandwiches: list[dict] | None = None
+                 ) -> GaussianFit:
+    """Every tier of a gaussian analysis; ``r`` is the R factor of [X | y] (rank checked).
+    ``sandwiches``: the robust covariances per tier when already computed (a streamed run
+    accumulates them over batches, compiler/stream_fit.py)."""
     from scipy.linalg import solve_triangular
 
     n, p = design.x.shape
@@ -68,11 +71,12 @@ def fit_gaussian(analysis: Analysis, design: Design, r: np.ndarray,
                                     rinv[:width, :width]))
 
     robust = [c for c in covariances if c.kind != "classical"]
-    sandwiches = [{} for _ in numbers]
-    if robust:
-        residuals = [design.y - design.x[:, :t.width] @ t.beta for t in numbers]
-        sandwiches = sandwich_covariances(design.x, rinv, [t.width for t in numbers],
-                                          residuals, robust, design.cluster)
+    if sandwiches is None:
+        sandwiches = [{} for _ in numbers]
+        if robust:
+            residuals = [design.y - design.x[:, :t.width] @ t.beta for t in numbers]
+            sandwiches = sandwich_covariances(design.x, rinv, [t.width for t in numbers],
+                                              residuals, robust, design.cluster)
 
     tiers = []
     for k, (tier, t) in enumerate(zip(analysis.tiers, numbers)):
