@@ -2,11 +2,31 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from .problems import Problem
+
+
+EXAMPLES = 5  # example rows a data-contract finding names
+
+
+@dataclass(frozen=True)
+class Tally:
+    """Rows that broke one rule: how many, and the first few positions and values.
+
+    A check over one batch of rows gives a Tally with positions offset to the whole file;
+    ``merge`` combines the tallies of consecutive batches, so checks can run per batch.
+    """
+
+    count: int = 0
+    rows: tuple[int, ...] = ()  # 0-based positions into the Table, at most EXAMPLES
+    values: tuple = ()  # the offending values at those rows, as read
+
+    def merge(self, later: Tally) -> Tally:
+        return Tally(self.count + later.count, (self.rows + later.rows)[:EXAMPLES],
+                     (self.values + later.values)[:EXAMPLES])
 
 
 @dataclass(frozen=True)
@@ -25,6 +45,20 @@ class Table:
     rows_read: int
     columns: dict[str, np.ndarray]
     unused_columns: tuple[str, ...] = ()  # columns in the file the dictionary does not name
+    # numeric columns holding values that are not numbers (read as NaN), for the contract
+    unparsed: dict[str, Tally] = field(default_factory=dict)
+    # categorical columns as read: (int32 codes, distinct values), code -1 = missing; a cache
+    # that spares bind from hashing millions of strings (see ``categories``)
+    codes: dict[str, tuple[np.ndarray, tuple[str, ...]]] = field(default_factory=dict)
+
+    def categories(self, name: str) -> tuple[np.ndarray, tuple[str, ...]]:
+        """A text column as (codes, distinct values), code -1 for missing."""
+        if name in self.codes:
+            return self.codes[name]
+        import pandas as pd
+
+        codes, uniques = pd.factorize(self.columns[name], use_na_sentinel=True)
+        return codes.astype(np.int32), tuple(uniques)
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,297 @@
+"""The data contract: the data dictionary's promises, checked against the table.
+
+Each check is a function over arrays that returns a :class:`~compiler.bound.Tally` (how many
+rows broke the rule, and the first few with their values); a check over one batch of rows takes
+the batch's ``offset`` and tallies of consecutive batches combine with ``Tally.merge``, so the
+same checks serve a streaming reader. Only ``repeated`` needs the whole column at once.
+`findings` turns the tallies into problems that name the column, the number of rows, up to five
+example rows (by the plan's row_id, else by 1-based data row number) and the offending values.
+
+Non-positive values under a `log` term are counted over every row where the value is present,
+not only the analysed rows: the dictionary's promise is about the column, and the strict reading
+does not change with the population.
+"""
+
+from __future__ import annotations
+
+import difflib
+
+import numpy as np
+
+from .bound import EXAMPLES, Sample, Table, Tally
+from .plan import Analysis, Plan, Variable
+from .problems import Problem
+
+# --- checks over arrays -------------------------------------------------------------------
+
+
+def tally(bad: np.ndarray, values: np.ndarray, offset: int = 0) -> Tally:
+    """The rows where ``bad`` holds: their count and the first EXAMPLES with their values."""
+    count = int(np.count_nonzero(bad))
+    if not count:
+        return Tally()
+    first: list[int] = []
+    step = 1 << 16  # scan forward in slices: the examples are near the start or few
+    for start in range(0, len(bad), step):
+        first.extend(int(r) + start for r in np.flatnonzero(bad[start:start + step]))
+        if len(first) >= EXAMPLES:
+            break
+    first = first[:EXAMPLES]
+    return Tally(count, tuple(r + offset for r in first), tuple(_plain(values[r]) for r in first))
+
+
+def outside_range(values: np.ndarray, low: float | None, high: float | None,
+                  offset: int = 0) -> Tally:
+    bad = np.zeros(len(values), bool)
+    if low is not None:
+        bad |= values < low
+    if high is not None:
+        bad |= values > high
+    return tally(bad, values, offset)
+
+
+def not_binary(values: np.ndarray, offset: int = 0) -> Tally:
+    return tally((values != 0) & (values != 1) & ~np.isnan(values), values, offset)
+
+
+def not_count(values: np.ndarray, offset: int = 0) -> Tally:
+    with np.errstate(invalid="ignore"):
+        return tally((values < 0) | ((values != np.floor(values)) & ~np.isnan(values)),
+                     values, offset)
+
+
+def not_positive(values: np.ndarray, offset: int = 0) -> Tally:
+    return tally(values <= 0, values, offset)
+
+
+def missing(values: np.ndarray, offset: int = 0) -> Tally:
+    """Missing values: NaN in a numeric array, code -1 in codes, None in an object array."""
+    if values.dtype == object:
+        return tally(np.equal(values, None), values, offset)
+    if np.issubdtype(values.dtype, np.integer):
+        return tally(values < 0, values, offset)
+    return tally(np.isnan(values), values, offset)
+
+
+def level_counts(codes: np.ndarray, distinct: tuple[str, ...]) -> dict[str, int]:
+    """How many rows hold each distinct value (merge batches by adding the dicts)."""
+    counts = np.bincount(codes[codes >= 0], minlength=len(distinct))
+    return {value: int(n) for value, n in zip(distinct, counts) if n}
+
+
+def outside_levels(codes: np.ndarray, distinct: tuple[str, ...], levels: tuple[str, ...],
+                   offset: int = 0) -> Tally:
+    foreign = [k for k, value in enumerate(distinct) if value not in levels]
+    if not foreign:
+        return Tally()
+    values = np.array(list(distinct) + [None], dtype=object)
+    return tally(np.isin(codes, foreign), values[codes], offset)
+
+
+def repeated(ids: np.ndarray) -> Tally:
+    """Rows whose identifier another row also holds (missing identifiers aside).
+
+    Sorting 64-bit hashes finds candidates fast; candidates are then compared exactly.
+    Needs the whole column: a streaming reader must keep the hashes of earlier batches.
+    """
+    hashes = np.fromiter(map(hash, ids), dtype=np.int64, count=len(ids))
+    ordered = np.sort(hashes)
+    if not np.any(ordered[1:] == ordered[:-1]):
+        return Tally()
+    collided = np.unique(ordered[1:][ordered[1:] == ordered[:-1]])
+    rows_of: dict[object, list[int]] = {}
+    for row in np.flatnonzero(np.isin(hashes, collided)):
+        if ids[row] is not None:
+            rows_of.setdefault(ids[row], []).append(int(row))
+    shared = sorted(r for rows in rows_of.values() if len(rows) > 1 for r in rows)
+    return Tally(len(shared), tuple(shared[:EXAMPLES]),
+                 tuple(ids[r] for r in shared[:EXAMPLES]))
+
+
+def _plain(value):
+    if isinstance(value, (np.floating, float)):
+        return float(value) if not float(value).is_integer() else int(value)
+    return value
+
+
+# --- findings -----------------------------------------------------------------------------
+
+
+def findings(plan: Plan, table: Table) -> list[Problem]:
+    """Every column-level finding of the contract: errors and warnings together."""
+    problems: list[Problem] = []
+    if table.rows_read == 0:
+        problems.append(Problem(f"the data file {table.path} has no rows, only a header",
+                                code="no-rows"))
+    logged = logged_variables(plan)
+    for variable in plan.variables:
+        if variable.name not in table.columns:
+            problems.append(_absent(variable, table))
+            continue
+        if table.rows_read:
+            problems.extend(_column_findings(plan, table, variable, variable.name in logged))
+    if table.unused_columns:
+        listed = ", ".join(table.unused_columns)
+        problems.append(Problem(f"columns the data dictionary does not declare, not read: "
+                                f"{listed}", severity="warning", code="unused-columns",
+                                details={"columns": list(table.unused_columns)}))
+    return problems
+
+
+def logged_variables(plan: Plan) -> set[str]:
+    """Variables that enter a model as a log: `log` terms and the poisson offset."""
+    logged = {a.offset for a in plan.analyses if a.offset}
+    for analysis in plan.analyses:
+        for term in analysis.tiers[-1].terms:
+            if term.form == "log":
+                logged.update(term.variables)
+    return logged
+
+
+def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool) -> list[Problem]:
+    name, values = variable.name, table.columns[variable.name]
+    problems: list[Problem] = []
+    found: list[tuple[Tally, str, str, str | None]] = []  # tally, message, code, hint
+    if name in table.unparsed:
+        found.append((table.unparsed[name], "text in a numeric column", "text-in-numeric",
+                      f"only numbers, or a missing-value marker ({_markers(plan)}), may appear"))
+    if variable.is_numeric:
+        if variable.min is not None or variable.max is not None:
+            span = f"[{_num(variable.min, '-∞')}, {_num(variable.max, '∞')}]"
+            found.append((outside_range(values, variable.min, variable.max),
+                          f"values outside {span}", "out-of-range", None))
+        if variable.kind == "binary":
+            found.append((not_binary(values), "values other than 0 and 1 in a binary column",
+                          "not-binary", None))
+        if variable.kind == "count":
+            found.append((not_count(values), "negative or non-integer values in a count column",
+                          "not-count", None))
+        if logged:
+            found.append((not_positive(values), "values ≤ 0 in a variable that enters as a log",
+                          "not-positive", "a log is defined only for positive values"))
+    elif variable.kind == "categorical":
+        codes, distinct = table.categories(name)
+        problems += _level_findings(plan, table, variable, codes, distinct)
+    if name == plan.data.row_id:
+        found.append((repeated(values), "identifier values repeated (row_id must be unique)",
+                      "duplicate-id", None))
+        found.append((missing(values), "identifier missing (row_id must be complete)",
+                      "missing-id", None))
+    problems += [_problem(plan, table, name, t, message, code, hint)
+                 for t, message, code, hint in found if t.count]
+    if variable.max_missing is not None:
+        absent = missing(table.codes[name][0] if name in table.codes else values)
+        share = absent.count / table.rows_read
+        if share > variable.max_missing:
+            problems.append(_problem(
+                plan, table, name, absent,
+                f"missing in {share:.1%} of rows, above the declared max_missing "
+                f"{variable.max_missing:.1%}", "too-many-missing", None))
+    return problems
+
+
+def _level_findings(plan: Plan, table: Table, variable: Variable, codes: np.ndarray,
+                    distinct: tuple[str, ...]) -> list[Problem]:
+    problems = []
+    outside = outside_levels(codes, distinct, variable.levels)
+    if outside.count:
+        counts = level_counts(codes, distinct)
+        foreign = {v: n for v, n in counts.items() if v not in variable.levels}
+        listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
+        folded = {level.casefold(): level for level in variable.levels}
+        hints = [f"`{v}` differs from the declared level `{folded[v.casefold()]}` only in case"
+                 for v in sorted(foreign) if v.casefold() in folded]
+        problems.append(_problem(
+            plan, table, variable.name, outside,
+            f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
+            "unknown-level", "; ".join(hints) or None))
+    exposures = {a.exposure for a in plan.analyses}
+    if variable.name not in exposures:  # an exposure's levels are checked per analysis
+        seen = level_counts(codes, distinct)
+        for level in variable.levels:
+            if level not in seen:
+                problems.append(Problem(f"the declared level `{level}` never occurs",
+                                        column=variable.name, severity="warning",
+                                        code="level-never-seen", details={"level": level}))
+    return problems
+
+
+def sample_findings(plan: Plan, analysis: Analysis, table: Table, sample: Sample) -> list[Problem]:
+    """Findings about one analysis' sample: no rows at all, or an exposure level absent."""
+    flow = sample.flow
+    if flow.n == 0:
+        return [Problem(f"analysis `{analysis.id}` has no rows to analyse: {describe_flow(flow)}",
+                        code="empty-sample", details={"analysis": analysis.id})]
+    exposure = plan.variable(analysis.exposure)
+    if exposure.kind == "categorical":
+        codes, distinct = table.categories(exposure.name)
+        levels = exposure.levels
+    elif exposure.kind == "binary":
+        codes, distinct = table.columns[exposure.name].astype(np.int64), ("0", "1")
+        levels = ("0", "1")
+    else:
+        return []
+    seen = level_counts(codes[sample.rows], distinct)
+    return [Problem(f"the declared level `{level}` of the exposure does not occur among the "
+                    f"{flow.n} analysed rows of analysis `{analysis.id}`, so its effect "
+                    "cannot be estimated", column=exposure.name, code="exposure-level-absent",
+                    details={"analysis": analysis.id, "level": level})
+            for level in levels if level not in seen]
+
+
+def describe_flow(flow) -> str:
+    steps = [f"{flow.rows_read} rows read"]
+    steps += [f"{s.reason}: −{s.excluded}" for s in flow.by_condition if s.excluded]
+    steps.append(f"{flow.rows_in_population} in the population")
+    steps += [f"{s.reason}: −{s.excluded}" for s in flow.by_missing if s.excluded]
+    steps.append(f"{flow.n} analysed")
+    return "; ".join(steps)
+
+
+# --- wording ------------------------------------------------------------------------------
+
+
+def row_labels(plan: Plan, table: Table, rows) -> tuple[str, list[str]]:
+    """Example rows by the plan's row_id when the file has it, else by 1-based row number."""
+    ids = table.columns.get(plan.data.row_id) if plan.data.row_id else None
+    if ids is not None and all(ids[r] is not None for r in rows):
+        return plan.data.row_id, [str(ids[r]) for r in rows]
+    return "row number", [str(r + 1) for r in rows]
+
+
+def _problem(plan: Plan, table: Table, column: str, found: Tally, message: str, code: str,
+             hint: str | None) -> Problem:
+    label, rows = row_labels(plan, table, found.rows)
+    noun = "row" if found.count == 1 else "rows"
+    if label == "row number":
+        named = "; ".join(f"row {r}: {_show(v)}" for r, v in zip(rows, found.values))
+    else:
+        named = f"{label} " + "; ".join(f"{r}: {_show(v)}" for r, v in zip(rows, found.values))
+    return Problem(f"{message}: {found.count} {noun}, e.g. {named}", column=column, hint=hint,
+                   code=code, details={"rows": found.count, "examples": rows,
+                                       "example_by": label,
+                                       "values": [_show(v) for v in found.values]})
+
+
+def _absent(variable: Variable, table: Table) -> Problem:
+    close = difflib.get_close_matches(variable.name, table.unused_columns, n=1, cutoff=0.6)
+    folded = [c for c in table.unused_columns if c.casefold() == variable.name.casefold()]
+    near = folded or close
+    return Problem("declared in the data dictionary but not in the file", column=variable.name,
+                   hint=f"the file has a column `{near[0]}`" if near else None,
+                   code="column-missing")
+
+
+def _markers(plan: Plan) -> str:
+    return ", ".join(f'"{m}"' for m in plan.data.missing) or "none declared"
+
+
+def _num(value: float | None, default: str) -> str:
+    if value is None:
+        return default
+    return str(int(value)) if float(value).is_integer() else str(value)
+
+
+def _show(value) -> str:
+    return "missing" if value is None or (isinstance(value, float) and value != value) \
+        else str(value)

@@ -1,0 +1,377 @@
+"""read: the data file meets the data dictionary.
+
+Every column the dictionary declares is read, and no other; each with the type its kind
+implies: identifiers and categoricals as text (so `007` stays `007`), continuous, count and
+binary variables as float64 with NaN for missing. The sha256 of the file's bytes is taken in
+the same pass. A file that cannot be read stops the run (exit 3) with a problem naming the file
+and, for a ragged row, the line; values that are not numbers in a numeric column are kept for
+the data contract (``Table.unparsed``) so that bind reports them with every other finding.
+
+CSV/TSV and Parquet are read with pyarrow, SAS transport (xpt) and Stata (dta) with pandas.
+"""
+
+from __future__ import annotations
+
+import csv
+import hashlib
+import io
+import re
+import threading
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from .bound import EXAMPLES, Table, Tally
+from .plan import Plan, Variable
+from .problems import Exit, Problem, Stop
+
+FORMATS = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", ".pq": "parquet",
+           ".xpt": "xpt", ".dta": "dta"}
+BLOCK = 4 << 20  # bytes pyarrow parses per block; also the hashing step
+# what pyarrow's float parser accepts, so that text found on the slow path matches the fast path
+NUMBER = r"^[+-]?((\d+\.?\d*|\.\d+)([eE][+-]?\d+)?|(?i:inf|infinity|nan))$"
+
+
+def read(plan: Plan, path: str | Path) -> Table:
+    """The declared columns of the data file, typed, with the file's sha256 and size."""
+    path = Path(path)
+    fmt = data_format(plan, path)
+    if not path.is_file():
+        raise _stop(f"data file {path} not found", "data-file-missing")
+    reader = {"csv": _read_delimited, "tsv": _read_delimited, "parquet": _read_parquet,
+              "xpt": _read_pandas, "dta": _read_pandas}[fmt]
+    try:
+        header, arrays, rows, digest, size = reader(plan, path, fmt)
+    except Stop:
+        raise
+    except (OSError, ValueError, KeyError, EOFError, pa.ArrowException) as error:
+        # the library's complaint, in one line: the file is not what its format says
+        first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
+        raise _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable") from None
+    declared = {v.name for v in plan.variables}
+    columns: dict[str, np.ndarray] = {}
+    unparsed: dict[str, Tally] = {}
+    codes: dict[str, tuple[np.ndarray, tuple[str, ...]]] = {}
+    missing = None if fmt in ("csv", "tsv") else plan.data.missing  # pyarrow applied it already
+    for variable in plan.variables:
+        if variable.name not in arrays:
+            continue
+        data = arrays.pop(variable.name)  # release each arrow column once converted
+        if variable.is_numeric:
+            columns[variable.name], tally = numbers(data, missing)
+            if tally.count:
+                unparsed[variable.name] = tally
+        elif variable.kind == "categorical":
+            codes[variable.name] = coded(data, missing)
+            columns[variable.name] = _lookup(*codes[variable.name])
+        else:
+            columns[variable.name] = texts(data, missing)
+    unused = tuple(name for name in header if name not in declared and name not in columns)
+    return Table(path=str(path), format=fmt, sha256=digest, size_bytes=size, rows_read=rows,
+                 columns=columns, unused_columns=unused, unparsed=unparsed, codes=codes)
+
+
+def data_format(plan: Plan, path: Path) -> str:
+    """data.format when given, else the format the file's extension names."""
+    fmt = plan.data.format or FORMATS.get(path.suffix.lower())
+    if fmt not in set(FORMATS.values()):
+        known = ", ".join(sorted(set(FORMATS.values())))
+        raise _stop(f"cannot tell the format of {path}: give data.format ({known}) or use "
+                    f"one of the extensions {', '.join(FORMATS)}", "data-format")
+    return fmt
+
+
+# --- CSV and TSV -------------------------------------------------------------------------
+
+
+class _HashingReader:
+    """A binary file that hashes the bytes as they are read: one pass gives parse and digest.
+
+    pyarrow pulls blocks through ``read`` on its I/O thread; hashlib releases the GIL on large
+    buffers, so hashing overlaps with parsing. The header peeked first is replayed.
+    """
+
+    def __init__(self, raw):
+        self._raw = raw
+        self._hash = hashlib.sha256()
+        self._replay = b""
+        self.size = 0
+        self.closed = False
+
+    def _pull(self, n: int) -> bytes:
+        chunk = self._raw.read(n)
+        self._hash.update(chunk)
+        self.size += len(chunk)
+        return chunk
+
+    def peek_record(self, limit: int = 16 << 20) -> bytes:
+        """The start of the file up to at least one line end (or all of a short file)."""
+        while b"\n" not in self._replay and len(self._replay) < limit:
+            chunk = self._pull(1 << 16)
+            if not chunk:
+                break
+            self._replay += chunk
+        return self._replay
+
+    def read(self, n: int = -1) -> bytes:
+        if self._replay:
+            head = self._replay if n < 0 else self._replay[:n]
+            self._replay = self._replay[len(head):]
+            return head
+        return self._pull(n if n >= 0 else -1)
+
+    def readable(self) -> bool:
+        return True
+
+    def seekable(self) -> bool:
+        return False
+
+    def close(self) -> None:
+        self.closed = True
+
+    def hexdigest(self) -> str:
+        while self._pull(BLOCK):  # whatever the parser did not ask for still counts
+            pass
+        return self._hash.hexdigest()
+
+
+def _read_delimited(plan: Plan, path: Path, fmt: str):
+    try:
+        return _parse_delimited(plan, path, fmt, numbers_as_text=False)
+    except pa.ArrowInvalid as error:
+        if "CSV parse error" in str(error):
+            raise _ragged(plan, path, fmt, error) from None
+        if "conversion error" not in str(error):
+            raise
+    # a numeric column holds text: read the numeric columns as text to name every such value
+    return _parse_delimited(plan, path, fmt, numbers_as_text=True)
+
+
+def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool):
+    import pyarrow.csv as pacsv
+
+    delimiter = "\t" if fmt == "tsv" else ","
+    with path.open("rb") as raw:
+        source = _HashingReader(raw)
+        header = _header(source.peek_record(), delimiter, path)
+        present = _present(plan, header)
+        text = pa.string()
+        types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
+                 else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
+                 for v in plan.variables if v.name in present}
+        # include_columns=[] would mean every column; read one as text to count the rows
+        include = list(present) or header[:1]
+        table = pacsv.read_csv(
+            source,
+            read_options=pacsv.ReadOptions(use_threads=True, block_size=BLOCK),
+            parse_options=pacsv.ParseOptions(delimiter=delimiter),
+            convert_options=pacsv.ConvertOptions(
+                include_columns=include, column_types=types or {include[0]: text},
+                null_values=list(plan.data.missing), strings_can_be_null=True))
+        digest = source.hexdigest()
+    arrays = {name: table.column(name) for name in present}
+    return header, arrays, table.num_rows, digest, source.size
+
+
+def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
+    if not prefix.strip():
+        raise _stop(f"data file {path} is empty: there is no header row", "data-empty")
+    text = prefix.decode("utf-8-sig", errors="replace")
+    return next(csv.reader(io.StringIO(text), delimiter=delimiter), [])
+
+
+def _present(plan: Plan, header: list[str]) -> list[str]:
+    declared = [v.name for v in plan.variables]
+    repeated = sorted({n for n in header if n in declared and header.count(n) > 1})
+    if repeated:
+        raise Stop([Problem(f"the header names this column {header.count(n)} times, so "
+                            "which one the plan means is unclear", column=n,
+                            code="duplicate-column") for n in repeated], Exit.DATA_CONTRACT)
+    return [n for n in declared if n in header]
+
+
+def _ragged(plan: Plan, path: Path, fmt: str, error: Exception) -> Stop:
+    """Translate pyarrow's parse error into the line, found by a serial (row-counting) pass."""
+    import pyarrow.csv as pacsv
+
+    message = str(error)
+    try:  # only a single-threaded reader knows row numbers
+        pacsv.read_csv(path, read_options=pacsv.ReadOptions(use_threads=False),
+                       parse_options=pacsv.ParseOptions(delimiter="\t" if fmt == "tsv" else ","),
+                       convert_options=pacsv.ConvertOptions(include_columns=[]))
+    except pa.ArrowInvalid as serial:
+        message = str(serial)
+    found = re.search(r"Row #(\d+): Expected (\d+) columns, got (\d+): ?(.*)", message, re.S)
+    if not found:
+        return _stop(f"cannot read {path}: {message.splitlines()[0]}", "data-unreadable")
+    line, expected, got, excerpt = found.groups()
+    excerpt = excerpt.strip().splitlines()[0] if excerpt.strip() else ""
+    excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
+    return Stop([Problem(f"{path}: line {line} has {got} fields where the header has {expected}"
+                         + (f": {excerpt!r}" if excerpt else ""),
+                         hint="a field holding the delimiter must be quoted",
+                         code="ragged-row", details={"line": int(line), "fields": int(got),
+                                                     "expected": int(expected)})],
+                Exit.DATA_CONTRACT)
+
+
+# --- Parquet, xpt, dta -------------------------------------------------------------------
+
+
+def _bytes_and_digest(path: Path) -> tuple[bytes, threading.Thread, list[str]]:
+    """Read the file once; hash it on a second thread while the caller parses the bytes."""
+    data = path.read_bytes()
+    out: list[str] = []
+    thread = threading.Thread(target=lambda: out.append(hashlib.sha256(data).hexdigest()))
+    thread.start()
+    return data, thread, out
+
+
+def _read_parquet(plan: Plan, path: Path, fmt: str):
+    import pyarrow.parquet as pq
+
+    data, hashing, digest = _bytes_and_digest(path)
+    try:
+        parquet = pq.ParquetFile(pa.BufferReader(data))
+        header = parquet.schema_arrow.names
+        present = _present(plan, header)
+        table = parquet.read(columns=present, use_threads=True)
+        rows = parquet.metadata.num_rows
+    finally:
+        hashing.join()
+    return header, {n: table.column(n) for n in present}, rows, digest[0], len(data)
+
+
+def _read_pandas(plan: Plan, path: Path, fmt: str):
+    import pandas as pd
+
+    data, hashing, digest = _bytes_and_digest(path)
+    try:
+        if fmt == "xpt":
+            frame = pd.read_sas(io.BytesIO(data), format="xport", encoding="utf-8")
+        else:
+            frame = pd.read_stata(io.BytesIO(data), preserve_dtypes=False)
+    finally:
+        hashing.join()
+    header = [str(c) for c in frame.columns]
+    if fmt == "xpt":  # SAS names are case-insensitive and stored upper-case by many writers
+        by_upper = {n.upper(): n for n in header}
+        rename = {by_upper[v.name.upper()]: v.name for v in plan.variables
+                  if v.name not in header and v.name.upper() in by_upper}
+        frame = frame.rename(columns=rename)
+        header = [rename.get(n, n) for n in header]
+    present = _present(plan, header)
+    return header, {n: _arrow_of(frame[n]) for n in present}, len(frame), digest[0], len(data)
+
+
+def _arrow_of(series) -> pa.ChunkedArray:
+    import pandas as pd
+
+    if isinstance(series.dtype, pd.CategoricalDtype):
+        series = series.astype(object)
+    if pd.api.types.is_numeric_dtype(series.dtype) or pd.api.types.is_bool_dtype(series.dtype):
+        return pa.chunked_array([pa.array(series.to_numpy(), from_pandas=True)])
+    values = [None if v is None or (isinstance(v, float) and v != v) else
+              v.decode("utf-8", "replace") if isinstance(v, bytes) else str(v)
+              for v in series.tolist()]
+    return pa.chunked_array([pa.array(values, pa.string())])
+
+
+# --- arrow columns to the Table's numpy arrays ---------------------------------------------
+
+
+def numbers(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None
+            ) -> tuple[np.ndarray, Tally]:
+    """float64 with NaN for missing, and a Tally of values that are not (finite) numbers."""
+    if pa.types.is_dictionary(data.type):
+        data = data.cast(data.type.value_type)
+    if pa.types.is_string(data.type) or pa.types.is_large_string(data.type):
+        data, text = _parse_numbers(_without_missing(data, missing))
+    else:
+        data = data.cast(pa.float64())
+        text = Tally()
+    values = data.to_numpy()
+    # pyarrow parses nan and inf: in a data file they are text, not values
+    if np.count_nonzero(~np.isfinite(values)) > data.null_count:
+        rows = np.flatnonzero(~np.isfinite(values) & data.is_valid().to_numpy())
+        text = text.merge(Tally(len(rows), tuple(int(r) for r in rows[:EXAMPLES]),
+                                tuple(str(values[r]) for r in rows[:EXAMPLES])))
+        values = values.copy()
+        values[rows] = np.nan
+    if not values.flags.writeable or not values.flags.c_contiguous:
+        values = np.ascontiguousarray(values).copy()
+    return values, text
+
+
+def _parse_numbers(data: pa.ChunkedArray) -> tuple[pa.ChunkedArray, Tally]:
+    trimmed = pc.utf8_trim_whitespace(data)
+    text = pc.and_(pc.is_valid(trimmed),
+                   pc.invert(pc.fill_null(pc.match_substring_regex(trimmed, NUMBER), True)))
+    rows = np.flatnonzero(text.to_numpy(zero_copy_only=False))
+    tally = Tally(len(rows), tuple(int(r) for r in rows[:EXAMPLES]),
+                  tuple(data.take(pa.array(rows[:EXAMPLES])).to_pylist()))
+    kept = pc.if_else(text, pa.scalar(None, pa.string()), trimmed)
+    try:
+        return kept.cast(pa.float64()), tally
+    except pa.ArrowInvalid:  # a form the pattern admits and arrow does not: parse one by one
+        parsed = [None if s is None else float(s) for s in kept.to_pylist()]
+        return pa.chunked_array([pa.array(parsed, pa.float64())]), tally
+
+
+def coded(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None
+          ) -> tuple[np.ndarray, tuple[str, ...]]:
+    """A text column as int32 codes into its distinct values (-1 = missing)."""
+    data = _as_text(data)
+    if not pa.types.is_dictionary(data.type):
+        data = pc.dictionary_encode(data)
+    data = data.unify_dictionaries()
+    dictionary = data.chunk(0).dictionary.to_pylist() if data.num_chunks else []
+    dropped = set(missing or ())
+    remap = np.array([-1 if v in dropped else k for k, v in enumerate(dictionary)] + [-1],
+                     dtype=np.int32)
+    indices = pa.chunked_array([c.indices for c in data.chunks], pa.int32()) if data.num_chunks \
+        else pa.chunked_array([], pa.int32())
+    codes = remap[pc.fill_null(indices, len(dictionary)).to_numpy()] if len(data) else \
+        np.empty(0, np.int32)
+    return codes, tuple(dictionary)
+
+
+def texts(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None) -> np.ndarray:
+    """A text column as an object array of str, None for missing."""
+    data = _without_missing(_as_text(data), missing)
+    if pa.types.is_dictionary(data.type):
+        return _lookup(*coded(data, missing))
+    return np.asarray(data.to_numpy(zero_copy_only=False), dtype=object)
+
+
+def _lookup(codes: np.ndarray, values: tuple[str, ...]) -> np.ndarray:
+    table = np.empty(len(values) + 1, dtype=object)
+    table[:len(values)] = values
+    table[-1] = None  # code -1 picks the last slot
+    return table[codes]
+
+
+def _as_text(data: pa.ChunkedArray) -> pa.ChunkedArray:
+    """Text stays text; numbers stored in a text variable become their shortest form (7, not 7.0)."""
+    kind = data.type.value_type if pa.types.is_dictionary(data.type) else data.type
+    if pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_null(kind):
+        return data if not pa.types.is_null(kind) else data.cast(pa.string())
+    if pa.types.is_floating(kind):
+        values = data.to_numpy()
+        whole = values[np.isfinite(values)]
+        if np.all(whole == np.round(whole)) and np.all(np.abs(whole) < 2**53):
+            data = data.cast(pa.int64(), safe=False)  # every value is whole: nothing is lost
+    return data.cast(pa.string())
+
+
+def _without_missing(data: pa.ChunkedArray, missing: tuple[str, ...] | None) -> pa.ChunkedArray:
+    if not missing or pa.types.is_dictionary(data.type):
+        return data
+    hit = pc.is_in(data, value_set=pa.array(list(missing), pa.string()))
+    return pc.if_else(hit, pa.scalar(None, data.type), data)
+
+
+def _stop(message: str, code: str) -> Stop:
+    return Stop([Problem(message, code=code)], Exit.DATA_CONTRACT)
