@@ -4,7 +4,7 @@ Our own code builds every column from the resolved terms; no formula string is p
 nothing is evaluated. Columns come in tier order — intercept, the exposure (tier 0), then each
 tier's added terms in the order written — so every tier's design is a prefix of the next.
 
-Column forms and labels (design.md fixes the labels):
+Column forms and labels (design.md fixes the labels; compiler/columns.py makes them):
   variable    numeric as is (``age``); categorical in treatment coding against the declared
               reference, one indicator per other level in declared order (``district=hillside``)
   power       x**K (``age^2``)
@@ -28,11 +28,11 @@ from __future__ import annotations
 import numpy as np
 
 from .bound import BoundData
+from .columns import INTERCEPT, term_labels
 from .fitted import Design
 from .plan import Analysis, Plan, Term, Variable
 from .problems import Exit, Problem, Stop
 
-INTERCEPT = "(intercept)"
 _EXAMPLES = 5  # example rows named in a data problem
 
 
@@ -91,29 +91,6 @@ def tier_terms(analysis: Analysis) -> list[tuple[Term, ...]]:
         added.append(tuple(terms[len(before):]))
         before = terms
     return added
-
-
-def column_labels(plan: Plan, term: Term) -> list[str]:
-    """The design column labels of one term, without looking at data."""
-    if term.form == "variable":
-        return _variable_labels(plan.variable(term.variables[0]))
-    if term.form == "power":
-        return [f"{term.variables[0]}^{term.degree}"]
-    if term.form == "log":
-        return [f"log({term.variables[0]})"]
-    if term.form == "spline":
-        return [f"spline({term.variables[0]})[{j}]" for j in range(1, len(term.knots))]
-    combined = [""]
-    for name in term.variables:
-        sides = _variable_labels(plan.variable(name))
-        combined = [f"{a}*{b}" if a else b for a in combined for b in sides]
-    return combined
-
-
-def _variable_labels(variable: Variable) -> list[str]:
-    if variable.kind == "categorical":
-        return [f"{variable.name}={level}" for level in _other_levels(variable)]
-    return [variable.name]
 
 
 def _other_levels(variable: Variable) -> list[str]:
@@ -177,7 +154,7 @@ class _Builder:
         return [(variable.name, self.numeric(variable.name))]
 
     def term_columns(self, term: Term) -> list[tuple[str, np.ndarray]]:
-        labels = column_labels(self.plan, term)
+        labels = term_labels(self.plan, term)  # columns.py: the labels check --explain prints
         name = term.variables[0]
         if term.form == "variable":
             return self.variable_columns(self.plan.variable(name))
