@@ -1,0 +1,178 @@
+"""`prespec verify DIR [--data FILE] [--key PUB]`: check a sealed bundle offline.
+
+Intact means: manifest.json is canonical JSON whose ``manifest_sha256`` matches its content;
+every file it lists exists with its size and sha256; no other file is present (manifest.sig
+only when the manifest declares a signature); the manifest's plan and results digests agree
+with the files. With ``--key``, the Ed25519 signature of manifest.json must check.
+
+With ``--data FILE``, the bundled plan.yaml is run again on FILE with the bundle's own stamp
+and lock, and the new results.json bytes are compared with the bundled ones; every value
+that differs is named by its path in the results (a bounded list).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from .canonical import canonical_bytes, differences, sha256_hex
+from .problems import Exit, Problem
+
+MAX_DIFFERENCES = 25
+
+
+def verify(folder, *, data=None, key=None):
+    from .cli import Report
+
+    folder = Path(folder)
+    problems, lines = check_bundle(folder, key)
+    if not problems:
+        manifest = json.loads((folder / "manifest.json").read_bytes())
+        lines.insert(0, f"{folder}: intact: {len(manifest['files'])} files match the manifest "
+                        f"(manifest sha256 {manifest['manifest_sha256'][:12]}), {manifest['stamp']}")
+        if data is not None:
+            problems, more = rerun(folder, Path(data))
+            lines += more
+    payload = {"bundle": str(folder), "intact": not problems,
+               "failures": [p.message for p in problems]}
+    return Report(exit_code=Exit.NOT_INTACT if problems else Exit.OK, lines=lines,
+                  payload=payload, problems=tuple(problems))
+
+
+def _fail(message: str, code: str = "not-intact", **details) -> Problem:
+    return Problem(message, code=code, details=details)
+
+
+def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
+    """Every way the bundle differs from its manifest (empty when intact), and notes."""
+    from .seal import MANIFEST, SIGNATURE, manifest_digest
+
+    if not folder.is_dir():
+        return [_fail(f"{folder}: not a bundle folder (it does not exist or is not a folder)")], []
+    try:
+        raw = (folder / MANIFEST).read_bytes()
+        manifest = json.loads(raw.decode("utf-8"))
+        listed = {entry["path"]: entry for entry in manifest["files"]}
+    except (OSError, UnicodeDecodeError, ValueError, KeyError, TypeError) as exc:
+        return [_fail(f"{MANIFEST}: unreadable ({type(exc).__name__}: {exc})",
+                      file=MANIFEST)], []
+    problems, notes = [], []
+    if raw != canonical_bytes(manifest):
+        problems.append(_fail(f"{MANIFEST}: its bytes are not the canonical form of its content "
+                              "(it was edited)", file=MANIFEST))
+    if manifest.get("manifest_sha256") != manifest_digest(manifest):
+        problems.append(_fail(f"{MANIFEST}: its content does not match its own digest "
+                              "manifest_sha256 (it was edited)", file=MANIFEST))
+    for name, entry in sorted(listed.items()):
+        path = folder / name
+        if not path.is_file():
+            problems.append(_fail(f"{name}: missing from the bundle", file=name))
+            continue
+        data = path.read_bytes()
+        if len(data) != entry.get("size") or sha256_hex(data) != entry.get("sha256"):
+            problems.append(_fail(f"{name}: does not match the manifest (size {len(data)}, "
+                                  f"sha256 {sha256_hex(data)[:12]}; the manifest says size "
+                                  f"{entry.get('size')}, sha256 {str(entry.get('sha256'))[:12]})",
+                                  file=name))
+    signature = manifest.get("signature")
+    expected = set(listed) | {MANIFEST} | ({SIGNATURE} if signature else set())
+    present = {p.relative_to(folder).as_posix() for p in folder.rglob("*") if not p.is_dir()}
+    problems += [_fail(f"{name}: not listed in the manifest (an added file)", file=name)
+                 for name in sorted(present - expected)]
+    problems += _cross_check(manifest, listed)
+    if signature:
+        problems_, note = _check_signature(folder, raw, signature, key)
+        problems += problems_
+        notes += note
+    elif key is not None:
+        problems.append(_fail(f"{MANIFEST}: the bundle is not signed, but --key was given",
+                              file=MANIFEST))
+    return problems, notes
+
+
+def _cross_check(manifest: dict, listed: dict) -> list[Problem]:
+    from .seal import MANIFEST
+
+    problems = []
+    pairs = (("results", "sha256", "results.json"), ("plan", "file_sha256", "plan.yaml"))
+    for part, field, name in pairs:
+        stated = (manifest.get(part) or {}).get(field)
+        if name in listed and stated != listed[name].get("sha256"):
+            problems.append(_fail(f"{MANIFEST}: its {part} digest disagrees with its "
+                                  f"entry for {name}", file=MANIFEST))
+    return problems
+
+
+def _check_signature(folder: Path, raw: bytes, signature: dict, key) -> tuple[list, list]:
+    from .seal import SIGNATURE, public_key_sha256
+
+    if key is None:
+        return [], [f"signed ({signature.get('algorithm')}, public key sha256 "
+                    f"{str(signature.get('public_key_sha256'))[:12]}); "
+                    "give --key PUB to check the signature"]
+    from cryptography.exceptions import InvalidSignature
+    from cryptography.hazmat.primitives import serialization
+    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
+
+    try:
+        public = serialization.load_pem_public_key(Path(key).read_bytes())
+    except (OSError, ValueError, TypeError) as exc:
+        return [_fail(f"{key}: cannot read the public key: {exc}", code="bad-key")], []
+    if not isinstance(public, Ed25519PublicKey):
+        return [_fail(f"{key}: not an Ed25519 public key", code="bad-key")], []
+    path = folder / SIGNATURE
+    if not path.is_file():
+        return [_fail(f"{SIGNATURE}: missing, but the manifest says the bundle is signed",
+                      file=SIGNATURE)], []
+    try:
+        public.verify(path.read_bytes(), raw)
+    except InvalidSignature:
+        mismatch = public_key_sha256(public) != signature.get("public_key_sha256")
+        why = " (the bundle was signed with another key)" if mismatch else ""
+        return [_fail(f"{SIGNATURE}: the signature does not check with {key}{why}",
+                      file=SIGNATURE)], []
+    return [], [f"signature checks with {key} (Ed25519)"]
+
+
+# ---------------------------------------------------------------------------------------------
+# verify --data
+
+
+def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
+    """Run the bundled plan on ``data_path`` as the bundle was run; compare results bytes."""
+    from .bundle import rehearsal_table, results_document
+    from .lock import read_lock
+    from .pipeline import Stamp, analyse, compile_plan
+    from .problems import Stop
+    from .results import to_bytes
+
+    old_bytes = (folder / "results.json").read_bytes()
+    old = json.loads(old_bytes)
+    plan_path = folder / "plan.yaml"
+    plan = compile_plan(plan_path)
+    state = read_lock(folder / "plan.lock.json") if old["preregistered"] else None
+    stamp = Stamp(preregistered=old["preregistered"], rehearsal=old["rehearsal"],
+                  note=old["rehearsal_note"])
+    settings = old.get("rehearsal_settings")
+    notes = []
+    if settings and settings["source"] == "synthetic":
+        notes.append(f"a synthetic rehearsal: its data are made again from seed "
+                     f"{settings['seed']}; {data_path} is not read")
+    try:
+        table = rehearsal_table(plan, settings, data_path) if settings else None
+        analysed = analyse(plan, data_path, table=table)
+    except Stop as stop:
+        listed = "".join(f"\n  {p.format()}" for p in stop.problems)
+        return [_fail(f"results.json: the bundled plan cannot be re-run on {data_path}:{listed}",
+                      code="rerun-failed", file="results.json")], notes
+    new = results_document(analysed, stamp, plan_bytes=plan_path.read_bytes(), state=state,
+                           settings=settings)
+    if to_bytes(new) == old_bytes:
+        return [], notes + [f"re-run on {data_path}: results.json is byte-identical"]
+    changed = differences(old, json.loads(to_bytes(new)))
+    shown = changed[:MAX_DIFFERENCES]
+    if len(changed) > len(shown):
+        shown.append(f"… and {len(changed) - len(shown)} more")
+    message = (f"results.json: a re-run on {data_path} gives different results "
+               f"({len(changed)} values differ):" + "".join(f"\n  {c}" for c in shown))
+    return [_fail(message, code="results-differ", file="results.json", differences=changed)], notes
