@@ -160,7 +160,9 @@ def _sandwich(design: Design, t: GlmTier, robust: list[Covariance]) -> dict:
 
 
 def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
-              notes: list[str], sandwich: dict, null_deviance: float | None) -> TierFit:
+              notes: list[str], sandwich: dict, null_deviance: float | None,
+              statistics: tuple[float, float] | None = None) -> TierFit:
+    """``statistics``: (deviance, Pearson χ²) when already accumulated (a streamed run)."""
     from .design import tier_terms
 
     n = design.x.shape[0]
@@ -183,8 +185,8 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
                                       t.failure)
     deviance = pearson_chi2 = dispersion = None
     warned = list(notes)
-    if t.mu is not None:
-        deviance, pearson_chi2 = _statistics(design, t, analysis.family)
+    if t.mu is not None or statistics is not None:
+        deviance, pearson_chi2 = statistics or _statistics(design, t, analysis.family)
         dispersion = pearson_chi2 / df_resid if df_resid > 0 else None
         if analysis.family == "poisson" and dispersion is not None and \
                 dispersion > OVERDISPERSION:

@@ -124,6 +124,7 @@ class GlmTierFit:
     pearson_chi2: float
     iterations: int
     converged: bool
+    closest_boundary: float  # min over rows of min(μ, 1 − μ) (binomial) or μ (poisson)
 
 
 @dataclass
@@ -159,14 +160,14 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
         if on_pass is not None:
             on_pass(iteration)
         sums = _one_pass(batches(), family, moments, active)
-        for tier, (dev, null_dev, llf, pearson, acc) in zip(active, sums):
+        for tier, (dev, null_dev, llf, pearson, boundary, acc) in zip(active, sums):
             tier.deviances.append(dev)
             seen = len(tier.deviances) - 2  # iterations completed before this pass
             converged = seen >= 1 and _close(tier.deviances[-2], dev, tolerance)
             r = acc.r
             if converged or seen == max_iterations:
                 tier.done = GlmTierFit(tier.width, tier.params, tier.r, r[:-1, :-1], moments.n,
-                                       dev, null_dev, llf, pearson, seen, converged)
+                                       dev, null_dev, llf, pearson, seen, converged, boundary)
                 continue
             tier.params = solve_triangular(r[:-1, :-1], r[:-1, -1])
             tier.r = r[:-1, :-1]
@@ -180,7 +181,7 @@ def _close(before: float, after: float, tolerance: float) -> bool:
 
 def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
               tiers: list[_Tier]) -> list[tuple]:
-    sums = [[0.0, 0.0, 0.0, 0.0, TsqrAccumulator(t.width + 1)] for t in tiers]
+    sums = [[0.0, 0.0, 0.0, 0.0, np.inf, TsqrAccumulator(t.width + 1)] for t in tiers]
     for x, y, offset in batches:
         null_mu = _null_mean(family, moments, offset, len(y))
         off = 0.0 if offset is None else offset
@@ -195,13 +196,16 @@ def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
             acc[1] += family.deviance(y, null_mu)
             acc[2] += family.log_likelihood(y, mu)
             acc[3] += family.pearson(y, mu)
+            if len(mu):
+                near = np.minimum(mu, 1 - mu) if family.name == "binomial" else mu
+                acc[4] = min(acc[4], float(near.min()))
             weight = 1 / (family.link_deriv(mu) ** 2 * family.variance(mu))
             working = eta + family.link_deriv(mu) * (y - mu) - off
             root = np.sqrt(weight)
             block = np.empty((len(y), tier.width + 1))
             np.multiply(x[:, :tier.width], root[:, None], out=block[:, :-1])
             block[:, -1] = working * root
-            acc[4].add(block)
+            acc[5].add(block)
     return sums
 
 
