@@ -1,0 +1,622 @@
+"""The resolve pass: meaning checked, every problem at the offending value's own line:col."""
+
+from __future__ import annotations
+
+import pytest
+
+from compiler.pipeline import compile_plan
+from compiler.problems import Exit, Stop
+
+# A small valid plan. Tests change one line (so later line numbers stay put) or append rules.
+BASE = """\
+prespec: 1
+study: {id: trial}
+data: {row_id: pid}
+variables:
+  pid: {kind: identifier}
+  y: {kind: continuous, min: 0, max: 100}
+  arm: {kind: categorical, levels: [control, low, high]}
+  sex: {kind: categorical, levels: [f, m]}
+  age: {kind: continuous, min: 18, max: 90}
+  smoker: {kind: binary}
+  visits: {kind: count}
+  event: {kind: binary}
+  dose: {kind: continuous, min: 1, max: 50}
+  site: {kind: categorical, levels: [north, south]}
+populations:
+  adults:
+    where:
+      - {variable: age, at_least: 18}
+analyses:
+  - id: main
+    outcome: y
+    family: gaussian
+    exposure: arm
+    tiers:
+      - name: crude
+      - name: adjusted
+        add: [age, sex]
+decisions:
+  - {id: H1, analysis: main, test: superiority, level: high}
+"""
+
+
+def write(tmp_path, text: str) -> str:
+    path = tmp_path / "plan.yaml"
+    path.write_text(text, encoding="utf-8")
+    return str(path)
+
+
+def problems(tmp_path, text: str) -> list[tuple[str, int, int]]:
+    with pytest.raises(Stop) as caught:
+        compile_plan(write(tmp_path, text))
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    return [(p.message, p.place.line, p.place.col) for p in caught.value.problems]
+
+
+def hints(tmp_path, text: str) -> list[str | None]:
+    with pytest.raises(Stop) as caught:
+        compile_plan(write(tmp_path, text))
+    return [p.hint for p in caught.value.problems]
+
+
+def at(text: str, line: int, token: str) -> tuple[int, int]:
+    """(line, column) of ``token``'s first occurrence on ``line`` of ``text``: where the
+    problem must point."""
+    return line, text.splitlines()[line - 1].index(token) + 1
+
+
+def variant(old: str, new: str, text: str = BASE) -> str:
+    assert old in text
+    return text.replace(old, new, 1)
+
+
+def with_rules(rules: str) -> str:
+    """BASE with its decision list replaced by ``rules`` (lines from 29 on)."""
+    return BASE.replace("  - {id: H1, analysis: main, test: superiority, level: high}\n", rules)
+
+
+# ---- the Plan built ---------------------------------------------------------------------------
+
+
+def test_the_demo_plan_resolves():
+    plan = compile_plan("plans/dusk-sleep.yaml")
+    assert plan.study.id == "dusk-sleep"
+    assert [a.id for a in plan.analyses] == ["primary", "settled", "awakenings"]
+
+
+def test_the_plan_remembers_its_source_path_as_given(tmp_path):
+    path = write(tmp_path, BASE)
+    assert compile_plan(path).source == path
+
+
+def test_defaults_are_filled_in(tmp_path):
+    plan = compile_plan(write(tmp_path, BASE))
+    main = plan.analysis("main")
+    assert (main.report_tier, main.confidence, main.covariance.label) == ("adjusted", 0.95, "classical")
+    assert plan.data.missing == ("", "NA")
+    decision = plan.decisions[0]
+    assert (decision.tier, decision.alpha, decision.direction) == ("adjusted", 0.05, "two-sided")
+
+
+def test_a_categorical_reference_defaults_to_the_first_level(tmp_path):
+    assert compile_plan(write(tmp_path, BASE)).variable("arm").reference == "control"
+
+
+def test_tiers_are_cumulative_with_the_exposure_first(tmp_path):
+    tiers = compile_plan(write(tmp_path, BASE)).analysis("main").tiers
+    assert [t.label for t in tiers[0].terms] == ["arm"]
+    assert [t.label for t in tiers[1].terms] == ["arm", "age", "sex"]
+    assert [t.label for t in tiers[1].added] == ["age", "sex"]
+
+
+def test_places_point_into_the_plan(tmp_path):
+    plan = compile_plan(write(tmp_path, BASE))
+    added = plan.analysis("main").tiers[1].added
+    assert [(t.place.line, t.place.col) for t in added] == [(27, 15), (27, 20)]
+    assert (plan.variable("sex").place.line, plan.analysis("main").place.line) == (8, 20)
+
+
+def test_the_only_population_is_used_when_an_analysis_names_none(tmp_path):
+    assert compile_plan(write(tmp_path, BASE)).analysis("main").population == "adults"
+
+
+def test_no_population_means_all_rows(tmp_path):
+    text = variant("populations:\n  adults:\n    where:\n      - {variable: age, at_least: 18}\n",
+                   "\n\n\n\n")
+    assert compile_plan(write(tmp_path, text)).analysis("main").population is None
+
+
+def test_numeric_level_codes_are_kept_as_written(tmp_path):
+    text = variant("levels: [north, south]}", "levels: [01, 02], reference: 02}")
+    site = compile_plan(write(tmp_path, text)).variable("site")
+    assert (site.levels, site.reference) == (("01", "02"), "02")
+
+
+def test_a_level_named_no_stays_a_level(tmp_path):
+    text = variant("levels: [f, m]}", "levels: [no, yes, off]}")
+    assert compile_plan(write(tmp_path, text)).variable("sex").levels == ("no", "yes", "off")
+
+
+def test_a_two_level_exposure_defaults_to_its_other_level(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, direction: higher}\n")
+    text = variant("    exposure: arm\n", "    exposure: site\n", text)
+    assert compile_plan(write(tmp_path, text)).decisions[0].level == "south"
+
+
+def test_members_of_a_family_take_its_alpha(tmp_path):
+    text = BASE + "multiplicity:\n  - {method: holm, alpha: 0.025, decisions: [H1]}\n"
+    assert compile_plan(write(tmp_path, text)).decisions[0].alpha == 0.025
+
+
+# ---- variables used are declared --------------------------------------------------------------
+
+
+def test_an_unknown_outcome_is_named_with_a_suggestion(tmp_path):
+    text = variant("    outcome: y\n", "    outcome: yy\n")
+    assert problems(tmp_path, text) == [("unknown variable `yy` (outcome of analysis `main`)", 21, 14)]
+    assert hints(tmp_path, text) == ["did you mean `y`?"]
+
+
+def test_a_term_that_looks_like_code_is_an_unknown_variable(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, \"age + os.system('x')\"]")
+    assert problems(tmp_path, text) == [
+        ("unknown variable `age + os.system('x')` (term of analysis `main`)", 27, 20)]
+
+
+def test_nothing_written_in_a_term_is_ever_run(tmp_path):
+    target = tmp_path / "ran"
+    code = f"__import__('os').mkdir('{target}')"
+    text = variant("add: [age, sex]", f'add: [age, "{code}"]')
+    assert problems(tmp_path, text)[0][0].startswith("unknown variable `__import__")
+    assert not target.exists()
+
+
+def test_an_unknown_variable_in_a_population_condition(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: agee, at_least: 18}")
+    assert problems(tmp_path, text) == [
+        ("unknown variable `agee` (condition of population `adults`)", 18, 20)]
+
+
+def test_an_unknown_row_id(tmp_path):
+    text = variant("data: {row_id: pid}", "data: {row_id: participant}")
+    assert problems(tmp_path, text) == [("unknown variable `participant` (data.row_id)", 3, 16)]
+
+
+def test_a_row_id_must_be_an_identifier(tmp_path):
+    text = variant("data: {row_id: pid}", "data: {row_id: visits}")
+    assert problems(tmp_path, text) == [
+        ("row_id `visits` is declared count; a row id must be kind identifier", 3, 16)]
+
+
+def test_an_unknown_cluster_variable(tmp_path):
+    text = variant("    tiers:\n", "    covariance: {cluster: ward}\n    tiers:\n")
+    assert problems(tmp_path, text)[0] == ("unknown variable `ward` (cluster of analysis `main`)", *at(text, 24, "ward"))
+
+
+def test_a_continuous_cluster_variable_is_refused(tmp_path):
+    text = variant("    tiers:\n", "    covariance: {cluster: age}\n    tiers:\n")
+    assert problems(tmp_path, text)[0] == (
+        "cluster variable `age` is continuous; clusters are named by an identifier, categorical "
+        "or count code", *at(text, 24, "age"))
+
+
+# ---- kinds fit their use ----------------------------------------------------------------------
+
+
+def test_a_power_of_a_categorical_is_refused(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, {power: sex, degree: 2}]")
+    assert problems(tmp_path, text) == [
+        ("a power term needs a continuous or count variable; `sex` is categorical", 27, 28)]
+
+
+def test_a_log_of_a_binary_is_refused(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, {log: smoker}]")
+    assert problems(tmp_path, text) == [
+        ("a log term needs a continuous or count variable; `smoker` is binary", 27, 26)]
+
+
+def test_a_log_of_a_variable_that_may_be_zero_is_refused(tmp_path):
+    text = variant("dose: {kind: continuous, min: 1,", "dose: {kind: continuous, min: 0,")
+    text = variant("add: [age, sex]", "add: [age, {log: dose}]", text)
+    assert problems(tmp_path, text) == [
+        ("log(dose) needs positive values, but `dose` may be as small as 0 (its declared min)",
+         27, 26)]
+
+
+def test_a_spline_of_a_categorical_is_refused(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, {spline: sex, knots: [1, 2, 3]}]")
+    assert problems(tmp_path, text) == [
+        ("a spline term needs a continuous or count variable; `sex` is categorical", 27, 29)]
+
+
+def test_spline_knots_must_increase(tmp_path):
+    text = variant("add: [age, sex]", "add: [sex, {spline: age, knots: [30, 50, 40]}]")
+    assert problems(tmp_path, text) == [("spline knots must increase strictly; 40 follows 50", 27, 50)]
+
+
+def test_spline_knots_must_lie_in_the_declared_range(tmp_path):
+    text = variant("add: [age, sex]", "add: [sex, {spline: age, knots: [10, 50, 70]}]")
+    assert problems(tmp_path, text) == [
+        ("knot 10 lies outside the declared range of `age` (18 to 90)", 27, 42)]
+
+
+def test_a_reference_must_be_one_of_the_levels(tmp_path):
+    text = variant("levels: [control, low, high]}", "levels: [control, low, high], reference: Control}")
+    assert problems(tmp_path, text) == [
+        ("reference `Control` is not a level of `arm` (control, low, high)", *at(text, 7, "Control"))]
+    assert hints(tmp_path, text) == ["did you mean `control`?"]
+
+
+def test_levels_must_be_unique(tmp_path):
+    text = variant("levels: [f, m]}", "levels: [f, m, f]}")
+    assert problems(tmp_path, text) == [("level `f` of `sex` is listed twice (first at column 37)", 8, 43)]
+
+
+def test_min_must_not_exceed_max(tmp_path):
+    text = variant("age: {kind: continuous, min: 18, max: 90}", "age: {kind: continuous, min: 90, max: 18}")
+    assert problems(tmp_path, text) == [("min 90 of `age` is larger than its max 18", 9, 41)]
+
+
+def test_levels_on_a_continuous_variable_are_refused(tmp_path):
+    text = variant("  visits: {kind: count}", "  visits: {kind: count, levels: [a, b]}")
+    assert problems(tmp_path, text) == [
+        ("`levels` applies only to categorical variables; `visits` is count", *at(text, 11, "levels"))]
+
+
+def test_a_categorical_without_levels_is_refused(tmp_path):
+    text = variant("  site: {kind: categorical, levels: [north, south]}", "  site: {kind: categorical}")
+    assert problems(tmp_path, text) == [
+        ("categorical variable `site` needs `levels`: every level it may hold", 14, 9)]
+
+
+@pytest.mark.parametrize("family, wanted", [("binomial", "binary"), ("poisson", "count")])
+def test_the_outcome_must_fit_the_family(tmp_path, family, wanted):
+    text = variant("    family: gaussian\n", f"    family: {family}\n")
+    assert problems(tmp_path, text) == [
+        (f"outcome `y` is continuous, but a {family} analysis needs a {wanted} outcome", 21, 14)]
+
+
+def test_a_gaussian_outcome_may_not_be_binary(tmp_path):
+    text = variant("    outcome: y\n", "    outcome: event\n")
+    assert problems(tmp_path, text) == [
+        ("outcome `event` is binary, but a gaussian analysis needs a continuous or count outcome",
+         21, 14)]
+
+
+def test_the_exposure_may_not_be_an_identifier(tmp_path):
+    text = variant("    exposure: arm\n", "    exposure: pid\n")
+    found = problems(tmp_path, text)
+    assert ("exposure `pid` is an identifier; identifiers are never modelled", 23, 15) in found
+
+
+def test_an_identifier_may_not_be_a_term(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, pid]")
+    assert problems(tmp_path, text) == [
+        ("`pid` is an identifier; identifiers are never model terms", 27, 20)]
+
+
+def test_an_offset_belongs_to_a_poisson_analysis(tmp_path):
+    text = variant("    tiers:\n", "    offset: dose\n    tiers:\n")
+    assert problems(tmp_path, text) == [
+        ("an offset belongs to a poisson analysis; analysis `main` is gaussian", 24, 13)]
+
+
+def test_an_offset_must_be_continuous_or_count(tmp_path):
+    text = variant("    outcome: y\n    family: gaussian\n", "    outcome: visits\n    family: poisson\n")
+    text = variant("    tiers:\n", "    offset: site\n    tiers:\n", text)
+    assert problems(tmp_path, text) == [
+        ("offset `site` is categorical; an offset is a continuous or count exposure time", 24, 13)]
+
+
+def test_events_per_parameter_is_not_for_gaussian_analyses(tmp_path):
+    text = variant("    tiers:\n", "    minimum_information: {events_per_parameter: 10}\n    tiers:\n")
+    assert problems(tmp_path, text) == [
+        ("events_per_parameter applies to binomial and poisson analyses, not gaussian", 24, 27)]
+
+
+# ---- terms and tiers --------------------------------------------------------------------------
+
+
+def test_a_term_added_twice_across_tiers(tmp_path):
+    text = variant("        add: [age, sex]\n", "        add: [age, sex]\n      - name: more\n        add: [smoker, age]\n")
+    assert problems(tmp_path, text) == [("term `age` is already added in tier `adjusted`", 29, 23)]
+
+
+def test_a_product_written_in_another_order_is_the_same_term(tmp_path):
+    text = variant("add: [age, sex]", "add: [{product: [age, sex]}, {product: [sex, age]}]")
+    assert problems(tmp_path, text) == [
+        ("term `sex*age` is already added in tier `adjusted`", 27, 38)]
+
+
+def test_a_term_equal_to_the_exposure(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, arm]")
+    assert problems(tmp_path, text) == [
+        ("`arm` is the exposure of analysis `main`; every tier already holds it", 27, 20)]
+
+
+def test_a_term_involving_the_outcome(tmp_path):
+    text = variant("add: [age, sex]", "add: [age, {product: [sex, y]}]")
+    assert problems(tmp_path, text) == [("`y` is the outcome; it cannot also be a term", 27, 36)]
+
+
+def test_a_product_of_the_same_variable_twice(tmp_path):
+    text = variant("add: [age, sex]", "add: [sex, {product: [age, age]}]")
+    assert problems(tmp_path, text) == [
+        ("`age` appears twice in the product; a product multiplies distinct variables", 27, 36)]
+
+
+def test_a_tier_name_used_twice(tmp_path):
+    text = variant("      - name: adjusted\n", "      - name: crude\n")
+    assert problems(tmp_path, text) == [
+        ("tier name `crude` is used twice in analysis `main` (first at line 25)", 26, 15)]
+
+
+def test_the_first_tier_holds_the_exposure_alone(tmp_path):
+    text = variant("      - name: crude\n", "      - {name: crude, add: [age]}\n")
+    assert problems(tmp_path, text) == [
+        ("the first tier (`crude`) holds the exposure alone; move its `add` terms to a later tier",
+         25, 23)]
+
+
+def test_a_later_tier_must_add_terms(tmp_path):
+    text = variant("        add: [age, sex]\n", "        add: [age, sex]\n      - name: same\n")
+    assert problems(tmp_path, text) == [
+        ("tier `same` adds no terms; every tier after the first adds at least one", 28, 9)]
+
+
+def test_an_unknown_report_tier(tmp_path):
+    text = variant("    tiers:\n", "    report_tier: adjustd\n    tiers:\n")
+    assert problems(tmp_path, text) == [
+        ("report_tier `adjustd` is not a tier of analysis `main` (crude, adjusted)", 24, 18)]
+    assert hints(tmp_path, text) == ["did you mean `adjusted`?"]
+
+
+# ---- populations ------------------------------------------------------------------------------
+
+
+def test_an_unknown_population(tmp_path):
+    text = variant("    outcome: y\n", "    population: adult\n    outcome: y\n")
+    assert problems(tmp_path, text) == [("unknown population `adult` (adults)", *at(text, 21, "adult"))]
+
+
+def test_an_analysis_must_name_its_population_when_several_are_declared(tmp_path):
+    text = variant("      - {variable: age, at_least: 18}\n",
+                   "      - {variable: age, at_least: 18}\n  smokers: {where: [{variable: smoker, equals: 1}]}\n")
+    assert problems(tmp_path, text) == [
+        ("analysis `main` must name its `population`: the plan declares 2 (adults, smokers)", 21, 5)]
+
+
+def test_an_ordered_comparison_on_a_categorical_is_refused(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: sex, at_least: 1}")
+    assert problems(tmp_path, text) == [("`at_least` compares numbers, but `sex` is categorical", *at(text, 18, "1}"))]
+
+
+def test_a_categorical_is_compared_with_declared_levels_only(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: site, in: [north, west]}")
+    assert problems(tmp_path, text) == [("`west` is not a level of `site`", *at(text, 18, "west"))]
+
+
+def test_a_level_in_the_wrong_case_gets_a_hint(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: site, equals: North}")
+    assert problems(tmp_path, text) == [("`North` is not a level of `site`", *at(text, 18, "North"))]
+    assert hints(tmp_path, text) == ["levels match exactly, letter case included: did you mean `north`?"]
+
+
+def test_a_binary_is_compared_with_0_or_1_only(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: smoker, equals: 2}")
+    assert problems(tmp_path, text) == [("`smoker` is binary (0/1); compare it with 0 or 1, not 2", *at(text, 18, "2}"))]
+
+
+def test_a_number_is_not_compared_with_text(tmp_path):
+    text = variant("{variable: age, at_least: 18}", "{variable: age, equals: old}")
+    assert problems(tmp_path, text) == [
+        ("`age` is continuous; `equals` needs a number here, not `old`", *at(text, 18, "old"))]
+
+
+# ---- ids --------------------------------------------------------------------------------------
+
+
+def test_a_duplicate_analysis_id(tmp_path):
+    text = BASE.replace("analyses:\n", "analyses:\n  - {id: main, outcome: y, family: gaussian, exposure: arm, tiers: [{name: t}]}\n")
+    assert problems(tmp_path, text) == [("analysis id `main` is used twice (first at line 20)", 21, 9)]
+
+
+def test_decisions_and_assumptions_share_one_id_space(tmp_path):
+    text = BASE + ("assumptions:\n  - {id: H1, analysis: main, check: constant-variance, "
+                   "fallback: {covariance: HC3}, applies_to: [H1]}\n")
+    assert problems(tmp_path, text) == [
+        ("id `H1` is used twice (first at line 29); decisions and assumptions share one set of ids",
+         31, 10)]
+
+
+# ---- decision rules ---------------------------------------------------------------------------
+
+
+def test_an_unknown_analysis_in_a_decision(tmp_path):
+    text = with_rules("  - {id: H1, analysis: mian, test: superiority, level: high}\n")
+    assert problems(tmp_path, text) == [("unknown analysis `mian` (main)", *at(text, 29, "mian"))]
+
+
+def test_an_unknown_decision_tier(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, level: high, tier: full}\n")
+    assert problems(tmp_path, text) == [("`full` is not a tier of analysis `main` (crude, adjusted)", *at(text, 29, "full"))]
+
+
+def test_a_one_sided_rule_on_a_multi_level_exposure_must_name_its_level(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, direction: lower}\n")
+    assert problems(tmp_path, text) == [
+        ("decision `H1` must name `level`: a lower rule compares one level of `arm` with `control`, "
+         "and there are 2 (low, high)", 29, 5)]
+
+
+def test_a_two_sided_rule_without_level_is_a_joint_test(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority}\n")
+    assert compile_plan(write(tmp_path, text)).decisions[0].level is None
+
+
+def test_the_level_may_not_be_the_reference(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, level: control}\n")
+    assert problems(tmp_path, text) == [
+        ("`control` is the reference level of `arm`; name a level to compare with it (low, high)",
+         *at(text, 29, "control}"))]
+
+
+def test_the_level_must_be_declared(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, level: hihg}\n")
+    assert problems(tmp_path, text) == [("`hihg` is not a level of `arm` (control, low, high)", *at(text, 29, "hihg"))]
+
+
+def test_a_level_for_a_continuous_exposure_is_refused(tmp_path):
+    text = variant("    exposure: arm\n", "    exposure: dose\n")
+    assert problems(tmp_path, text) == [
+        ("`level` names a level of a categorical exposure, but `dose` is continuous", *at(text, 29, "high"))]
+
+
+def test_a_field_that_means_nothing_for_the_test_is_refused(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, level: high, margin: 2}\n")
+    assert problems(tmp_path, text) == [
+        ("`margin` has no meaning for a superiority rule (decision `H1`)", *at(text, 29, "margin"))]
+
+
+def test_non_inferiority_needs_a_margin(tmp_path):
+    text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, direction: higher}\n")
+    assert problems(tmp_path, text) == [
+        ("non-inferiority `N1` needs `margin`: the largest loss still accepted", 29, 5)]
+
+
+def test_non_inferiority_needs_a_direction(tmp_path):
+    text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, margin: -2}\n")
+    assert problems(tmp_path, text) == [
+        ("non-inferiority `N1` needs `direction`: higher (larger values are better) or lower "
+         "(smaller values are better)", 29, 5)]
+
+
+def test_a_difference_margin_with_direction_higher_must_be_negative(tmp_path):
+    text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, "
+                      "direction: higher, margin: 2}\n")
+    assert problems(tmp_path, text) == [
+        ("with direction higher (larger is better) the non-inferiority margin on the difference "
+         "scale must be below 0, not 2", 29, 93)]
+
+
+def test_a_ratio_margin_with_direction_lower_must_exceed_one(tmp_path):
+    text = variant("    outcome: y\n    family: gaussian\n", "    outcome: event\n    family: binomial\n")
+    text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, "
+                      "direction: lower, margin: 0.8}\n").replace(
+        "    outcome: y\n    family: gaussian\n", "    outcome: event\n    family: binomial\n")
+    assert problems(tmp_path, text) == [
+        ("with direction lower (smaller is better) the non-inferiority margin on the ratio scale "
+         "must be above 1, not 0.8", 29, 92)]
+
+
+def test_equivalence_margins_must_straddle_no_difference(tmp_path):
+    text = with_rules("  - {id: E1, analysis: main, test: equivalence, level: high, margins: [1, 3]}\n")
+    assert problems(tmp_path, text) == [
+        ("equivalence margins [1, 3] must satisfy low < 0 < high on the difference scale", 29, 71)]
+
+
+def test_equivalence_needs_margins(tmp_path):
+    text = with_rules("  - {id: E1, analysis: main, test: equivalence, level: high}\n")
+    assert problems(tmp_path, text) == [("equivalence `E1` needs `margins: [low, high]`", 29, 5)]
+
+
+def test_change_in_estimate_measures_from_an_earlier_tier(tmp_path):
+    text = with_rules("  - {id: C1, analysis: main, test: change-in-estimate, level: high, "
+                      "from_tier: adjusted, tier: crude}\n")
+    assert problems(tmp_path, text) == [
+        ("change-in-estimate `C1` measures the change from tier `adjusted` to tier `crude`, so "
+         "`adjusted` must come first", 29, 80)]
+
+
+def test_an_unknown_from_tier(tmp_path):
+    text = with_rules("  - {id: C1, analysis: main, test: change-in-estimate, level: high, "
+                      "from_tier: raw}\n")
+    assert problems(tmp_path, text) == [("`raw` is not a tier of analysis `main` (crude, adjusted)", 29, 80)]
+
+
+def test_tier_selection_takes_no_tier(tmp_path):
+    text = with_rules("  - {id: T1, analysis: main, test: tier-selection, tier: crude}\n")
+    assert problems(tmp_path, text) == [
+        ("`tier` has no meaning for a tier-selection rule (decision `T1`)", 29, 52)]
+
+
+# ---- assumptions ------------------------------------------------------------------------------
+
+ASSUMPTION = ("assumptions:\n  - {id: A1, analysis: main, check: CHECK, fallback: {covariance: HC3}, "
+              "applies_to: [H1]}\n")
+
+
+def test_constant_variance_applies_to_gaussian_analyses_only(tmp_path):
+    text = variant("    outcome: y\n    family: gaussian\n", "    outcome: event\n    family: binomial\n")
+    text += ASSUMPTION.replace("CHECK", "constant-variance")
+    assert problems(tmp_path, text) == [
+        ("a constant-variance check applies to gaussian analyses; `main` is binomial",
+         *at(text, 31, "constant-variance"))]
+
+
+def test_dispersion_applies_to_binomial_and_poisson_only(tmp_path):
+    text = BASE + ASSUMPTION.replace("CHECK", "dispersion").replace("check: dispersion,", "check: dispersion, above: 1.5,")
+    assert problems(tmp_path, text) == [
+        ("a dispersion check applies to binomial and poisson analyses; `main` is gaussian",
+         *at(text, 31, "dispersion"))]
+
+
+def test_an_assumption_applies_to_known_decisions_only(tmp_path):
+    text = BASE + ASSUMPTION.replace("CHECK", "constant-variance").replace("[H1]", "[H2]")
+    assert problems(tmp_path, text) == [("unknown decision `H2`", *at(text, 31, "H2"))]
+
+
+def test_an_assumption_applies_to_decisions_of_its_own_analysis(tmp_path):
+    text = BASE.replace("decisions:\n", "  - {id: other, outcome: y, family: gaussian, exposure: sex, "
+                                        "tiers: [{name: t}], population: adults}\ndecisions:\n")
+    text += ASSUMPTION.replace("CHECK", "constant-variance").replace("analysis: main", "analysis: other")
+    assert problems(tmp_path, text) == [
+        ("decision `H1` reads analysis `main`, not `other`", *at(text, 32, "H1]"))]
+
+
+def test_an_unknown_fallback_cluster(tmp_path):
+    text = BASE + ASSUMPTION.replace("CHECK", "constant-variance").replace("HC3", "{cluster: ward}")
+    assert problems(tmp_path, text) == [("unknown variable `ward` (cluster of assumption `A1`)", *at(text, 31, "ward"))]
+
+
+# ---- multiplicity -----------------------------------------------------------------------------
+
+
+def test_a_family_member_must_exist(tmp_path):
+    text = BASE + "multiplicity:\n  - {method: holm, alpha: 0.05, decisions: [H1, H9]}\n"
+    assert problems(tmp_path, text) == [("unknown decision `H9`", *at(text, 31, "H9"))]
+
+
+def test_a_decision_belongs_to_one_family_at_most(tmp_path):
+    text = BASE + ("multiplicity:\n  - {method: holm, alpha: 0.05, decisions: [H1]}\n"
+                   "  - {method: bonferroni, alpha: 0.05, decisions: [H1]}\n")
+    assert problems(tmp_path, text) == [("decision `H1` already belongs to the holm family at line 31",
+                                      *at(text, 32, "H1"))]
+
+
+def test_a_family_holds_only_tests_of_the_exposure_effect(tmp_path):
+    text = with_rules("  - {id: T1, analysis: main, test: tier-selection}\n")
+    text += "multiplicity:\n  - {method: holm, alpha: 0.05, decisions: [T1]}\n"
+    assert problems(tmp_path, text) == [
+        ("decision `T1` is a tier-selection rule; a multiplicity family holds superiority, "
+         "non-inferiority and equivalence rules", *at(text, 31, "T1"))]
+
+
+def test_a_member_may_not_state_its_own_alpha(tmp_path):
+    text = with_rules("  - {id: H1, analysis: main, test: superiority, level: high, alpha: 0.01}\n")
+    text += "multiplicity:\n  - {method: holm, alpha: 0.05, decisions: [H1]}\n"
+    assert problems(tmp_path, text) == [
+        ("decision `H1` states alpha 0.01, but it belongs to a holm family held to alpha 0.05; "
+         "members take the family's alpha", *at(text, 29, "0.01"))]
+
+
+# ---- all together -----------------------------------------------------------------------------
+
+
+def test_every_problem_is_reported_at_once_in_file_order(tmp_path):
+    text = variant("    outcome: y\n", "    outcome: yy\n")
+    text = variant("add: [age, sex]", "add: [age, pid]", text)
+    text = variant("{variable: age, at_least: 18}", "{variable: sex, at_least: 1}", text)
+    assert [(line, col) for _, line, col in problems(tmp_path, text)] == [
+        at(text, 18, "1}"), at(text, 21, "yy"), at(text, 27, "pid")]
