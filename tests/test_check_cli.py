@@ -1,0 +1,121 @@
+"""`prespec check` and the command line's shared behaviour, through compiler.cli.main."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from compiler import __version__
+from compiler.cli import main
+
+DEMO = "plans/dusk-sleep.yaml"
+COMMANDS = ["check", "freeze", "amend", "run", "rehearse", "verify"]
+
+BROKEN = """\
+prespec: 1
+study: {id: trial}
+variables:
+  y: {kind: continuous}
+  arm: {kind: categorical, levels: [a, b]}
+  age: {kind: continuous}
+analyses:
+  - id: main
+    outcome: y
+    family: gaussian
+    exposure: arm
+    tiers:
+      - name: crude
+      - name: adjusted
+        add: [agee]
+"""
+
+
+def broken_plan(tmp_path) -> str:
+    path = tmp_path / "broken.yaml"
+    path.write_text(BROKEN, encoding="utf-8")
+    return str(path)
+
+
+def test_the_demo_plan_passes(capsys):
+    assert main(["check", DEMO]) == 0
+    assert capsys.readouterr().out.startswith(f"{DEMO}: ok: study dusk-sleep")
+
+
+def test_explain_shows_the_expanded_design_columns(capsys):
+    assert main(["check", "--explain", DEMO]) == 0
+    out = capsys.readouterr().out
+    assert "guidance=coached" in out
+    assert "age^2" in out
+    assert "district=hillside, district=market, district=riverside" in out
+
+
+def test_explain_states_the_sample_rule_and_the_nested_tests(capsys):
+    main(["check", "--explain", DEMO])
+    out = capsys.readouterr().out
+    assert ("complete cases over latency_w8, guidance, latency_w0, age, night_shift, district,"
+            in out.replace("\n    ", " "))
+    assert "crude → baseline: F test of the 2 added columns" in out
+    assert "crude → adjusted: LR test of the 3 added columns" in out
+
+
+def test_an_invalid_plan_exits_2_with_its_place(tmp_path, capsys):
+    path = broken_plan(tmp_path)
+    assert main(["check", path]) == 2
+    err = capsys.readouterr().err
+    assert err.splitlines()[0] == (
+        f"{path}:15:15: error: unknown variable `agee` (term of analysis `main`)")
+
+
+def test_the_hint_follows_its_problem(tmp_path, capsys):
+    main(["check", broken_plan(tmp_path)])
+    assert capsys.readouterr().err.splitlines()[1] == "  hint: did you mean `age`?"
+
+
+def test_json_lists_every_problem_with_file_line_and_column(tmp_path, capsys):
+    path = broken_plan(tmp_path)
+    assert main(["check", "--json", path]) == 2
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["exit_code"] == 2
+    assert [(p["file"], p["line"], p["col"], p["code"]) for p in doc["problems"]] == [
+        (path, 15, 15, "unknown-variable")]
+
+
+def test_json_of_a_valid_plan_carries_the_explanation(capsys):
+    assert main(["check", "--json", "--explain", DEMO]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["problems"] == []
+    primary = doc["explain"]["analyses"][0]
+    assert primary["tiers"][0]["columns"] == ["(intercept)", "guidance=leaflet", "guidance=coached"]
+
+
+def test_a_missing_plan_file_exits_2(tmp_path, capsys):
+    path = str(tmp_path / "absent.yaml")
+    assert main(["check", path]) == 2
+    assert capsys.readouterr().err.strip() == (
+        f"error: {path}: cannot read the plan: No such file or directory")
+
+
+def test_version(capsys):
+    with pytest.raises(SystemExit) as leaving:
+        main(["--version"])
+    assert leaving.value.code == 0
+    assert capsys.readouterr().out.strip() == f"prespec {__version__}"
+
+
+@pytest.mark.parametrize("command", [None, *COMMANDS])
+def test_help_on_every_command(command, capsys):
+    with pytest.raises(SystemExit) as leaving:
+        main(([command] if command else []) + ["--help"])
+    assert leaving.value.code == 0
+    assert capsys.readouterr().out.startswith("usage: prespec")
+
+
+@pytest.mark.parametrize("argv", [[], ["check"], ["check", "a.yaml", "b.yaml"],
+                                  ["check", "--bogus", "a.yaml"], ["nonsense"]])
+def test_command_line_errors_exit_2_with_one_line(argv, capsys):
+    with pytest.raises(SystemExit) as leaving:
+        main(argv)
+    assert leaving.value.code == 2
+    err = capsys.readouterr().err
+    assert len(err.strip().splitlines()) == 1 and err.startswith("prespec: error: ")
