@@ -24,7 +24,7 @@ def generate(rows: int, seed: int) -> list[dict[str, str]]:
     screen = np.clip(rng.gamma(4.0, 0.7, rows), 0, 12)
     coffee = rng.poisson(1.8, rows)
     latency_w0 = np.clip(rng.normal(44 + 5 * night_shift, 11), 5, 200)
-    sessions = np.where(guidance == 0, 0, rng.integers(0, 7, rows))
+    sessions = rng.integers(0, 7, rows)  # every arm has diary check-in sessions
     effect = np.array([0.0, -2.5, -7.0])[guidance]
     mean_w8 = (8 + 0.62 * latency_w0 + 0.08 * age + 0.004 * (age - 50) ** 2 + 5.5 * night_shift
                + np.array([0.0, 1.5, -1.0, 2.0])[district] + 1.1 * screen + effect)
