@@ -102,17 +102,21 @@ def table_csv(plan: Plan, columns: dict[str, np.ndarray]) -> bytes:
     missing = plan.data.missing[0] if plan.data.missing else ""
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
-    names = [v.name for v in plan.variables]
-    writer.writerow(names)
+    writer.writerow([v.name for v in plan.variables])
     texts = []
     for v in plan.variables:
         values = columns[v.name]
         if values.dtype == object:
-            texts.append([missing if x is None else x for x in values])
-        elif v.kind in ("count", "binary"):
-            texts.append([missing if x != x else str(int(x)) for x in values.tolist()])
+            text = values.copy()
+            text[values == None] = missing  # noqa: E711
         else:
-            texts.append([missing if x != x else repr(x) for x in values.tolist()])
+            known = np.isfinite(values)
+            text = np.full(len(values), missing, dtype=object)
+            if v.kind in ("count", "binary"):
+                text[known] = values[known].astype(np.int64).astype(str)
+            else:  # repr: the shortest text that reads back to the same double
+                text[known] = list(map(repr, values[known].tolist()))
+        texts.append(text.tolist())
     writer.writerows(zip(*texts))
     return out.getvalue().encode("utf-8")
 
@@ -215,7 +219,7 @@ def _bound_for(analysis: Analysis, columns: dict[str, np.ndarray],
     n = len(complete)
     flow = SampleFlow(rows_read=n, population=analysis.population, by_condition=(),
                       rows_in_population=n, by_missing=(), n=len(rows))
-    sample = Sample(analysis.id, rows, np.asarray([str(i + 1) for i in rows], dtype=object), flow)
+    sample = Sample(analysis.id, rows, (rows + 1).astype(str).astype(object), flow)
     table = Table(SYNTHETIC_PATH, "synthetic", "", 0, n, columns)
     return BoundData(table, (sample,), ())
 

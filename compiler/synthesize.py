@@ -173,14 +173,13 @@ def _counts(allowed: Allowed, size: int, rng: np.random.Generator,
 
 def identifiers(size: int, allowed: Allowed) -> np.ndarray:
     """Unique codes R00001 …, skipping any code a population rule excludes."""
-    width = max(5, len(str(size + len(allowed.excluded))))
-    out, k = [], 0
-    while len(out) < size:
-        k += 1
-        code = f"R{k:0{width}d}"
-        if code not in allowed.excluded:
-            out.append(code)
-    return np.asarray(out, dtype=object)
+    spare = len(allowed.excluded)
+    width = max(5, len(str(size + spare)))
+    numbers = np.arange(1, size + spare + 1).astype(str)
+    codes = np.char.add("R", np.char.zfill(numbers, width)).astype(object)
+    if spare:
+        codes = codes[~np.isin(codes, np.asarray(list(allowed.excluded), dtype=object))]
+    return codes[:size]
 
 
 def conform(variable: Variable, allowed: Allowed, values: np.ndarray,
@@ -219,8 +218,8 @@ def columns(plan: Plan, plan_layout: Layout, seed: int) -> dict[str, np.ndarray]
                 continue
             values[at] = draw(v, allowed[v.name], len(at), rng)
         if v.kind == "identifier":
-            present = np.array([not plan_layout.allowed[b][v.name].missing
-                                for b in plan_layout.block], dtype=bool)
+            kept = np.array([not a[v.name].missing for a in plan_layout.allowed], dtype=bool)
+            present = kept[plan_layout.block]
             excluded = frozenset().union(*(a[v.name].excluded for a in plan_layout.allowed))
             values[present] = identifiers(int(present.sum()), Allowed(excluded=excluded))
         out[v.name] = values
