@@ -32,6 +32,7 @@ from dataclasses import replace
 import numpy as np
 
 from . import synthesize
+from .allowed import Allowed
 from .bound import BoundData, Sample, SampleFlow, Table
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop
@@ -42,6 +43,7 @@ SYNTHETIC_PATH = "<synthetic>"
 _COVARIATE_SHARE = {"gaussian": 0.2, "binomial": 0.2, "poisson": 0.1}
 _MEAN_PROBABILITY = 0.3
 _MEAN_COUNT = 3.0
+_LOG_SCALE_LIMIT = 35.0
 
 
 def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
@@ -162,6 +164,8 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
     # Rows the design could not take (a variable a rule keeps missing) sit at the average.
     eta = np.zeros(rows)
     eta[complete] = centred @ beta
+    if analysis.family != "gaussian":  # keep exp() finite however large an --effect is asked
+        eta = np.clip(eta, -_LOG_SCALE_LIMIT, _LOG_SCALE_LIMIT)
 
     if analysis.family == "gaussian":
         y = middle + eta + rng.normal(0.0, noise_sd, rows)
@@ -185,7 +189,7 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
     return y
 
 
-def _location(allowed: list[synthesize.Allowed]) -> tuple[float, float]:
+def _location(allowed: list[Allowed]) -> tuple[float, float]:
     """Where a gaussian outcome sits and its noise sd: the middle of its range, range / 10."""
     lows = [a.low for a in allowed]
     highs = [a.high for a in allowed]
