@@ -70,9 +70,9 @@ def in_memory_bytes(plan: Plan, rows: int) -> int:
 
 
 def _width(plan: Plan, analysis) -> int:
-    from .design import column_labels, tier_terms
+    from .columns import design_labels
 
-    return 1 + sum(len(column_labels(plan, t)) for terms in tier_terms(analysis) for t in terms)
+    return len(design_labels(plan, analysis)[-1])
 
 
 def should_stream(plan: Plan, data_path: str, data_format: str, forced: bool) -> bool:

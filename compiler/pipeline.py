@@ -52,14 +52,20 @@ def compile_plan(path: str | Path) -> Plan:
 
 
 def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
-            table=None) -> Analysed:
-    """read → bind → design → fit → decide. Raises problems.Stop (exit 3) on a broken contract."""
-    from . import bind, decide, design, fit, read
+            table=None, progress: bool = False) -> Analysed:
+    """read → bind → design → fit → decide. Raises problems.Stop (exit 3) on a broken contract.
+    Streams the data in batches when ``stream`` or when it would not fit the memory budget
+    (compiler/stream.py); ``progress`` shows a progress line on a terminal."""
+    from . import bind, decide, design, fit, read, stream as streamed
 
-    if table is None:
-        table = read.read(plan, data_path)
-    bound = bind.bind(plan, table)
-    fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
+    fmt = None if table is not None else streamed.streaming_format(plan, data_path, bool(stream))
+    if fmt is not None:
+        from .budget import Progress
+
+        bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
+    else:
+        bound = bind.bind(plan, table if table is not None else read.read(plan, data_path))
+        fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
     verdicts, assumptions = decide.decide(plan, fits)
     return Analysed(plan, bound, fits, verdicts, assumptions)
 

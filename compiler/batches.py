@@ -1,0 +1,184 @@
+"""Record batches of the declared columns, each as a small :class:`Table` of its rows.
+
+CSV and TSV through pyarrow's streaming reader (``pyarrow.csv.open_csv``) with the same
+column types, missing-value markers and file-hashing reader as compiler/read.py; Parquet
+through ``ParquetFile.iter_batches``, hashed on a second thread. Each batch is converted by
+read.py's own functions, so a batch's arrays are exactly what an in-memory read would hold
+for those rows. Positions in a batch's tallies are offset to the whole file.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import threading
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Iterator
+
+import pyarrow as pa
+
+from . import read
+from .bound import Table, Tally
+from .plan import Plan
+
+BATCH_BYTES = 16 << 20  # CSV bytes parsed per batch
+PARQUET_ROWS = 131_072
+
+
+@dataclass
+class FileFacts:
+    """What a pass learns about the file itself: filled in as the pass goes."""
+
+    path: str
+    format: str
+    header: list[str] = field(default_factory=list)
+    present: list[str] = field(default_factory=list)
+    sha256: str = ""
+    size_bytes: int = 0
+    rows: int = 0
+
+
+class NumbersAsText(Exception):
+    """A numeric column holds text: the pass must start again reading numbers as text."""
+
+
+def batch_tables(plan: Plan, path: Path, fmt: str, facts: FileFacts, *,
+                 numbers_as_text: bool = False, hashing: bool = True
+                 ) -> Iterator[tuple[int, Table]]:
+    """(offset, batch Table) for every batch, in file order; ``facts`` is complete once the
+    iterator is exhausted."""
+    if fmt == "parquet":
+        yield from _parquet(plan, path, facts, hashing)
+    else:
+        yield from _delimited(plan, path, fmt, facts, numbers_as_text, hashing)
+
+
+def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
+    import pyarrow.csv as pacsv
+
+    delimiter = "\t" if fmt == "tsv" else ","
+    with path.open("rb") as raw:
+        source = read._HashingReader(raw) if hashing else _Plain(raw)
+        facts.header = read._header(source.peek_record(), delimiter, path)
+        facts.present = read._present(plan, facts.header)
+        text = pa.string()
+        types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
+                 else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
+                 for v in plan.variables if v.name in facts.present}
+        include = list(facts.present) or facts.header[:1]
+        try:
+            reader = pacsv.open_csv(
+                source,
+                read_options=pacsv.ReadOptions(use_threads=True, block_size=BATCH_BYTES),
+                parse_options=pacsv.ParseOptions(delimiter=delimiter),
+                convert_options=pacsv.ConvertOptions(
+                    include_columns=include, column_types=types or {include[0]: text},
+                    null_values=list(plan.data.missing), strings_can_be_null=True))
+            offset = 0
+            for batch in reader:
+                yield offset, _table(plan, facts, batch, offset, fmt)
+                offset += batch.num_rows
+        except pa.ArrowInvalid as error:
+            if "CSV parse error" in str(error):
+                raise read._ragged(plan, path, fmt, error) from None
+            if "conversion error" in str(error) and not numbers_as_text:
+                raise NumbersAsText() from None
+            raise
+        facts.rows = offset
+        if hashing:
+            facts.sha256 = source.hexdigest()
+            facts.size_bytes = source.size
+        else:
+            facts.size_bytes = path.stat().st_size
+
+
+class _Plain:
+    """The reader shape read._HashingReader has, without the hashing (for later passes)."""
+
+    def __init__(self, raw):
+        self._raw, self._replay, self.closed = raw, b"", False
+
+    def peek_record(self) -> bytes:
+        while b"\n" not in self._replay:
+            chunk = self._raw.read(1 << 16)
+            if not chunk:
+                break
+            self._replay += chunk
+        return self._replay
+
+    def read(self, n: int = -1) -> bytes:
+        if self._replay:
+            head = self._replay if n < 0 else self._replay[:n]
+            self._replay = self._replay[len(head):]
+            return head
+        return self._raw.read(n)
+
+    def readable(self) -> bool:
+        return True
+
+    def seekable(self) -> bool:
+        return False
+
+    def close(self) -> None:
+        self.closed = True
+
+
+def _parquet(plan, path, facts, hashing):
+    import pyarrow.parquet as pq
+
+    digest: list[str] = []
+    thread = None
+    if hashing:
+        thread = threading.Thread(target=lambda: digest.append(_file_sha256(path)))
+        thread.start()
+    try:
+        parquet = pq.ParquetFile(path)
+        facts.header = parquet.schema_arrow.names
+        facts.present = read._present(plan, facts.header)
+        offset = 0
+        for batch in parquet.iter_batches(batch_size=PARQUET_ROWS, columns=facts.present,
+                                          use_threads=True):
+            yield offset, _table(plan, facts, batch, offset, "parquet")
+            offset += batch.num_rows
+        facts.rows = offset
+    finally:
+        if thread is not None:
+            thread.join()
+    facts.size_bytes = path.stat().st_size
+    if hashing:
+        facts.sha256 = digest[0]
+
+
+def _file_sha256(path: Path) -> str:
+    digest = hashlib.sha256()
+    with path.open("rb") as handle:
+        while block := handle.read(read.BLOCK):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def _table(plan: Plan, facts: FileFacts, batch: pa.RecordBatch, offset: int,
+           fmt: str) -> Table:
+    """One batch as a Table, converted exactly as read.read converts whole columns."""
+    missing = None if fmt in ("csv", "tsv") else plan.data.missing
+    columns, unparsed, codes = {}, {}, {}
+    for variable in plan.variables:
+        if variable.name not in facts.present:
+            continue
+        data = pa.chunked_array([batch.column(variable.name)])
+        if variable.is_numeric:
+            columns[variable.name], tally = read.numbers(data, missing)
+            if tally.count:
+                unparsed[variable.name] = shifted(tally, offset)
+        elif variable.kind == "categorical":
+            codes[variable.name] = read.coded(data, missing)
+            columns[variable.name] = read._lookup(*codes[variable.name])
+        else:
+            columns[variable.name] = read.texts(data, missing)
+    return Table(path=facts.path, format=fmt, sha256="", size_bytes=0,
+                 rows_read=batch.num_rows, columns=columns, unparsed=unparsed, codes=codes)
+
+
+def shifted(tally: Tally, offset: int) -> Tally:
+    """A batch's tally with its row positions made positions in the whole file."""
+    return replace(tally, rows=tuple(r + offset for r in tally.rows))
