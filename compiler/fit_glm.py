@@ -5,10 +5,11 @@ computed here from the R factor of the weighted design W½X at the solution, by 
 as the gaussian ones (compiler/covariance.py). For these canonical links the classical
 covariance is (XᵀWX)⁻¹ with W = diag(V(μ)), and the Pearson residual is (y − μ)/√V(μ).
 
-What cannot be estimated is said: perfect or quasi-complete separation (statsmodels'
-PerfectSeparationWarning, or fitted probabilities numerically 0 or 1 — the test R's glm.fit
-applies, 10·ε), Poisson means numerically zero, and non-convergence leave the tier's
-coefficients and tests None with the reason, and a warning.
+What cannot be estimated is said: when statsmodels warns of perfect separation or a fitted
+value comes within 1e-6 of the boundary, the linear programme of compiler/separation.py
+decides whether the maximum-likelihood estimate exists; if it does not (complete or
+quasi-complete separation; Poisson means driven to zero), or the iteration did not converge,
+the tier's coefficients and tests are None with the reason, and a warning.
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from .inference import (coefficient_table, exposure_inference, finite_or_none,
 from .plan import Analysis, Covariance
 from .qr import augmented_r, triangular_inverse
 
-BOUNDARY = 10.0 * np.finfo(np.float64).eps  # fitted values this close to 0 or 1
+SUSPECT = 1e-6  # fitted values this close to 0 or 1 (Poisson: 0) prompt the separation check
 OVERDISPERSION = 1.5  # Pearson dispersion above this is flagged (common practice)
 
 
@@ -90,24 +91,24 @@ def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str
         except (np.linalg.LinAlgError, ValueError, FloatingPointError) as error:
             failure = f"the fit failed: {error}"
             return GlmTier(width, None, None, None, None, None, failure), [failure]
-    separated = any("PerfectSeparation" in type(w.message).__name__ for w in caught)
-    for w in caught:
+        mu = np.asarray(result.mu, dtype=np.float64)  # statsmodels computes some lazily
+        llf = finite_or_none(result.llf)
+        beta = np.asarray(result.params, dtype=np.float64)
+    warned = any("PerfectSeparation" in type(w.message).__name__ for w in caught)
+    for w in caught:  # numpy's overflow chatter is a symptom, judged below, not news
         text = str(w.message)
-        if "PerfectSeparation" not in type(w.message).__name__ and text not in notes:
+        if not (warned or issubclass(w.category, RuntimeWarning)) and text not in notes:
             notes.append(text)
-    mu = np.asarray(result.mu, dtype=np.float64)
-    if family == "binomial":
-        separated = separated or bool(np.any(np.minimum(mu, 1.0 - mu) < BOUNDARY))
-        weights = mu * (1.0 - mu)
-    else:
-        weights = mu.copy()
+    weights = mu * (1.0 - mu) if family == "binomial" else mu.copy()
+    edge = np.minimum(mu, 1.0 - mu) if family == "binomial" else mu
     failure = None
-    if separated:
-        failure = _SEPARATION if family == "binomial" else _ZERO_MEANS
-    elif not result.converged:
+    if warned or np.any(edge < SUSPECT):  # the linear programme decides
+        from .separation import separating_direction
+
+        if separating_direction(x, design.y, family):
+            failure = _SEPARATION if family == "binomial" else _ZERO_MEANS
+    if failure is None and not result.converged:
         failure = f"the fit did not converge in {result.fit_history['iteration']} iterations"
-    elif family == "poisson" and np.any(mu < BOUNDARY):
-        failure = _ZERO_MEANS
     rinv = None
     if failure is None:
         r = augmented_r(x, np.zeros(len(mu)), weights=weights)
@@ -117,14 +118,13 @@ def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str
             rinv = triangular_inverse(r[:width, :width])
     if failure:
         notes.insert(0, failure)
-    llf = finite_or_none(result.llf)
-    beta = np.asarray(result.params, dtype=np.float64)
     return GlmTier(width, beta, mu, weights, rinv, llf, failure), notes
 
 
-_SEPARATION = ("perfect or quasi-complete separation: fitted probabilities are numerically 0 "
-               "or 1, so the maximum-likelihood estimates do not exist")
-_ZERO_MEANS = ("fitted means numerically zero (e.g. a group with no events): the "
+_SEPARATION = ("complete or quasi-complete separation: a combination of the design columns "
+               "predicts some outcomes perfectly, so the maximum-likelihood estimates do not "
+               "exist")
+_ZERO_MEANS = ("fitted means driven to zero (e.g. a group with no events): the "
                "maximum-likelihood estimates do not exist")
 
 
