@@ -138,15 +138,10 @@ class _Refused(Exception):
         self.message, self.mark, self.hint, self.code = message, mark, hint, code
 
 
-class _Composer(Reader, Scanner, Parser, Composer, BaseResolver):
-    """PyYAML's safe front half, watching tags, aliases and depth as nodes are composed."""
+class _Watch:
+    """Watches tags, aliases and depth as PyYAML's composer builds each node."""
 
-    def __init__(self, text: str):
-        Reader.__init__(self, text)
-        Scanner.__init__(self)
-        Parser.__init__(self)
-        Composer.__init__(self)
-        BaseResolver.__init__(self)
+    def _start_watching(self) -> None:
         self.tags: list = []  # (tag, mark) of every explicit tag seen
         self.aliases = 0
         self.first_alias = None  # the mark of the first alias, where an alias bomb is reported
@@ -180,6 +175,34 @@ class _Composer(Reader, Scanner, Parser, Composer, BaseResolver):
             self.depth -= 1
             if event.anchor is not None:
                 self.open_anchors.discard(event.anchor)
+
+
+class _PythonComposer(_Watch, Reader, Scanner, Parser, Composer, BaseResolver):
+    reader_offsets_in_bytes = False
+
+    def __init__(self, text: str):
+        Reader.__init__(self, text)
+        Scanner.__init__(self)
+        Parser.__init__(self)
+        Composer.__init__(self)
+        BaseResolver.__init__(self)
+        self._start_watching()
+
+
+try:  # libyaml's event parser when present: ten times faster, the same events and marks
+    from yaml._yaml import CParser
+except ImportError:  # pragma: no cover - PyYAML built without libyaml
+    _Composer = _PythonComposer
+else:
+    class _Composer(_Watch, CParser, Composer, BaseResolver):  # type: ignore[no-redef]
+        reader_offsets_in_bytes = True  # libyaml reports a ReaderError's offset in UTF-8 bytes
+        get_single_node = Composer.get_single_node  # compose in Python, so _Watch sees it all
+
+        def __init__(self, text: str):
+            CParser.__init__(self, text)
+            Composer.__init__(self)
+            BaseResolver.__init__(self)
+            self._start_watching()
 
 
 def load(path: str | Path) -> Tree:
@@ -243,8 +266,11 @@ def _compose(text: str, source: str):
         line, col = (mark.line + 1, mark.column + 1) if mark else (1, 1)
         raise _stop(source, f"YAML syntax error: {message}", line, col, code="yaml-syntax") from None
     except yaml.reader.ReaderError as exc:
-        before = text[:exc.position]
-        line, col = before.count("\n") + 1, exc.position - (before.rfind("\n") + 1) + 1
+        position = exc.position
+        if _Composer.reader_offsets_in_bytes:
+            position = len(text.encode("utf-8")[:position].decode("utf-8", "ignore"))
+        before = text[:position]
+        line, col = before.count("\n") + 1, position - (before.rfind("\n") + 1) + 1
         raise _stop(source, f"the plan holds the control character U+{exc.character:04X}, "
                             "which YAML does not allow", line, col, code="yaml-syntax") from None
     except yaml.YAMLError as exc:
