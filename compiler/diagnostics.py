@@ -69,7 +69,7 @@ def breusch_pagan(x: np.ndarray, rinv: np.ndarray, residuals: np.ndarray):
     (Koenker 1981, J Econometrics 17:107–112; statsmodels' het_breuschpagan default).
     R² from Q: the explained sum of squares is ‖Q[:, 1:]ᵀ e²‖², Q[:, 1:] being orthogonal
     to the intercept."""
-    from scipy import stats
+    from scipy import special
 
     n, p = x.shape
     u = residuals ** 2
@@ -80,7 +80,7 @@ def breusch_pagan(x: np.ndarray, rinv: np.ndarray, residuals: np.ndarray):
     if centred <= 0.0 or p < 2:
         return None, None
     lm = n * float(projected @ projected) / centred
-    return finite_or_none(lm), finite_or_none(stats.chi2.sf(lm, p - 1))
+    return finite_or_none(lm), finite_or_none(special.chdtrc(p - 1, lm))
 
 
 def gaussian_diagnostics(design: Design, tier_name: str, r: np.ndarray, width: int,

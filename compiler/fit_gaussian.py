@@ -19,7 +19,7 @@ from .fitted import Comparison, Design, TierFit
 from .inference import (coefficient_table, exposure_inference, finite_or_none,
                         information_criteria, wald_test)
 from .plan import Analysis, Covariance
-from .qr import augmented_r, rank_tolerance, triangular_inverse
+from .qr import augmented_r, back_substitute, rank_tolerance, triangular_inverse
 
 EXACT_FIT = "exact fit: zero residual variance"
 
@@ -49,8 +49,6 @@ def fit_gaussian(analysis: Analysis, design: Design, r: np.ndarray,
     """Every tier of a gaussian analysis; ``r`` is the R factor of [X | y] (rank checked).
     ``sandwiches``: the robust covariances per tier when already computed (a streamed run
     accumulates them over batches, compiler/stream_fit.py)."""
-    from scipy.linalg import solve_triangular
-
     n, p = design.x.shape
     z = r[:p, p]
     r_yy = float(r[p, p]) ** 2
@@ -63,7 +61,7 @@ def fit_gaussian(analysis: Analysis, design: Design, r: np.ndarray,
 
     numbers = []
     for width in design.tier_width:
-        beta = solve_triangular(r[:width, :width], z[:width], lower=False, check_finite=False)
+        beta = back_substitute(r[:width, :width], z[:width])
         rss = float(tail[width] + r_yy)
         exact = rss <= exact_below
         rss = 0.0 if exact else rss
@@ -145,7 +143,7 @@ def _compare(analysis, design, small: GaussianTier, big: GaussianTier, small_nam
              n, sandwich, clusters) -> Comparison:
     """Classical: the nested F from the two RSS. Robust: the Wald test of the added columns
     under the larger tier's robust covariance, in F form on (df_added, reference df)."""
-    from scipy import stats
+    from scipy import special
 
     df_added = big.width - small.width
     df_big = n - big.width
@@ -165,7 +163,7 @@ def _compare(analysis, design, small: GaussianTier, big: GaussianTier, small_nam
     f = ((small.rss - big.rss) / df_added) / big.sigma2
     f = max(f, 0.0)  # RSS can only fall as columns are added; a negative is rounding
     return Comparison(small_name, big_name, "F", df_added, finite_or_none(f),
-                      finite_or_none(stats.f.sf(f, df_added, df_big)), float(df_big))
+                      finite_or_none(special.fdtrc(df_added, df_big, f)), float(df_big))
 
 
 def fit_r(design: Design) -> np.ndarray:

@@ -85,7 +85,8 @@ def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            result = sm.GLM(design.y, x, family=_family(family), offset=design.offset).fit()
+            result = sm.GLM(design.y, x, family=_family(family), offset=design.offset).fit(
+                wls_method="qr")  # QR steps, as the streamed IRLS takes (compiler/irls.py)
         except PerfectSeparationError:
             return GlmTier(width, None, None, None, None, None, _SEPARATION), [_SEPARATION]
         except (np.linalg.LinAlgError, ValueError, FloatingPointError) as error:
@@ -207,7 +208,7 @@ def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit
              sandwich: dict) -> Comparison:
     """Classical: the likelihood ratio 2(ℓ_big − ℓ_small) on χ²(df_added). Robust: the Wald
     χ² of the added columns under the larger tier's robust covariance."""
-    from scipy import stats
+    from scipy import special
 
     df_added = big.width - small.width
     covariance = analysis.covariance
@@ -230,7 +231,7 @@ def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit
                           "a log-likelihood is not finite")
     lr = max(2.0 * (big.log_likelihood - small.log_likelihood), 0.0)  # negative: rounding
     return Comparison(small_fit.name, big_fit.name, "LR", df_added, finite_or_none(lr),
-                      finite_or_none(stats.chi2.sf(lr, df_added)))
+                      finite_or_none(special.chdtrc(df_added, lr)))
 
 
 def events(design: Design) -> int:

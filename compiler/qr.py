@@ -74,10 +74,25 @@ def aliased_columns(r: np.ndarray, n: int) -> list[int]:
 
 
 def triangular_inverse(r: np.ndarray) -> np.ndarray:
-    """R⁻¹ by back substitution; its leading blocks are the inverses of R's leading blocks."""
-    from scipy.linalg import solve_triangular
+    """R⁻¹ by LAPACK dtrtri (back substitution); its leading blocks are the inverses of R's
+    leading blocks."""
+    from scipy.linalg import lapack
 
-    return solve_triangular(r, np.eye(r.shape[0]), lower=False, check_finite=False)
+    inverse, info = lapack.dtrtri(np.asarray(r, dtype=np.float64), lower=0)
+    if info != 0:
+        raise np.linalg.LinAlgError(f"R is singular at its diagonal entry {info}")
+    return np.triu(inverse)
+
+
+def back_substitute(r: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Solve R x = b for upper-triangular R (LAPACK dtrtrs)."""
+    from scipy.linalg import lapack
+
+    x, info = lapack.dtrtrs(np.asarray(r, dtype=np.float64), np.asarray(b, dtype=np.float64),
+                            lower=0)
+    if info != 0:
+        raise np.linalg.LinAlgError(f"R is singular at its diagonal entry {info}")
+    return x
 
 
 def row_chunks(n: int, chunk_rows: int = CHUNK_ROWS):
