@@ -96,8 +96,9 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool) -> BoundData
         if progress is not None:
             progress.show(f"reading {path.name}: {offset + table.rows_read:,} rows")
     if plan.data.row_id in columns:
-        columns[plan.data.row_id].add("duplicate-id",
-                                      _repeated(plan, path, fmt, columns[plan.data.row_id]))
+        repeats = _repeated(plan, path, fmt, columns[plan.data.row_id])
+        columns[plan.data.row_id].add("duplicate-id", repeats)
+        example_ids.update(zip(repeats.rows, repeats.values))  # its values are the ids
     meta = Table(path=str(path), format=fmt, sha256=facts.sha256, size_bytes=facts.size_bytes,
                  rows_read=facts.rows, columns={}, unused_columns=tuple(
                      n for n in facts.header if n not in {v.name for v in plan.variables}))
@@ -180,7 +181,7 @@ def _repeated(plan, path, fmt, column: _Column) -> Tally:
         inside = candidates[(candidates >= offset) & (candidates < offset + len(values))]
         ids.update((int(r), values[r - offset]) for r in inside)
     rows = np.array(sorted(ids), dtype=np.int64)
-    found = contract.repeated(np.array([ids[r] for r in rows], dtype=object))
+    found, _ = contract.identifier_faults(np.array([ids[r] for r in rows], dtype=object))
     return Tally(found.count, tuple(int(rows[r]) for r in found.rows), found.values)
 
 
