@@ -27,7 +27,7 @@ from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
 DATA = HERE / "data" / "read_bench.csv"
-ROWS = 11_000_000
+ROWS = 13_000_000
 CHUNK = 500_000
 ARMS = ["control", "low_dose", "high_dose"]
 SITES = [f"site_{k:02d}" for k in range(12)]
@@ -80,8 +80,8 @@ def bench_plan(path: Path):
         Variable("arm", "categorical", levels=tuple(ARMS), reference="control"),
         Variable("site", "categorical", levels=tuple(SITES), reference="site_00"),
         Variable("age", "continuous", min=18, max=90),
-        Variable("weight", "continuous", min=20, max=200),
-        Variable("sbp", "continuous", min=50, max=260),
+        Variable("weight", "continuous", min=0, max=300),
+        Variable("sbp", "continuous", min=0, max=400),
         Variable("visits", "count"),
         Variable("smoker", "binary"),
         Variable("score", "continuous", max_missing=0.1),
@@ -136,7 +136,9 @@ def measure(which: str, path: Path) -> dict:
 
 def run_one(which: str, path: Path) -> dict:
     out = subprocess.run([sys.executable, __file__, "--measure", which, "--path", str(path)],
-                         check=True, capture_output=True, text=True)
+                         capture_output=True, text=True)
+    if out.returncode:
+        raise SystemExit(f"{which} failed:\n{out.stderr}")
     return json.loads(out.stdout)
 
 

@@ -3,7 +3,8 @@
 Each check is a function over arrays that returns a :class:`~compiler.bound.Tally` (how many
 rows broke the rule, and the first few with their values); a check over one batch of rows takes
 the batch's ``offset`` and tallies of consecutive batches combine with ``Tally.merge``, so the
-same checks serve a streaming reader. Only ``repeated`` needs the whole column at once.
+same checks serve a streaming reader. Only ``identifier_faults`` needs the whole
+column at once.
 `findings` turns the tallies into problems that name the column, the number of rows, up to five
 example rows (by the plan's row_id, else by 1-based data row number) and the offending values.
 
@@ -75,7 +76,7 @@ def missing(values: np.ndarray, offset: int = 0) -> Tally:
 
 def level_counts(codes: np.ndarray, distinct: tuple[str, ...]) -> dict[str, int]:
     """How many rows hold each distinct value (merge batches by adding the dicts)."""
-    counts = np.bincount(codes[codes >= 0], minlength=len(distinct))
+    counts = np.bincount(codes + 1, minlength=len(distinct) + 1)[1:]  # slot 0: missing (-1)
     return {value: int(n) for value, n in zip(distinct, counts) if n}
 
 
@@ -88,24 +89,33 @@ def outside_levels(codes: np.ndarray, distinct: tuple[str, ...], levels: tuple[s
     return tally(np.isin(codes, foreign), values[codes], offset)
 
 
-def repeated(ids: np.ndarray) -> Tally:
-    """Rows whose identifier another row also holds (missing identifiers aside).
+def identifier_faults(ids: np.ndarray) -> tuple[Tally, Tally]:
+    """Rows whose identifier another row also holds, and rows with no identifier.
 
-    Sorting 64-bit hashes finds candidates fast; candidates are then compared exactly.
+    Python's cached string hashes, sorted, find repeat candidates in one pass over the column;
+    candidates are then compared exactly, so a hash collision never reports a false repeat.
     Needs the whole column: a streaming reader must keep the hashes of earlier batches.
     """
     hashes = np.fromiter(map(hash, ids), dtype=np.int64, count=len(ids))
-    ordered = np.sort(hashes)
-    if not np.any(ordered[1:] == ordered[:-1]):
-        return Tally()
-    collided = np.unique(ordered[1:][ordered[1:] == ordered[:-1]])
+    maybe_none = np.flatnonzero(hashes == hash(None))
+    absent = np.array([r for r in maybe_none if ids[r] is None], dtype=np.int64)
+    missing_ids = Tally()
+    if len(absent):
+        where = np.zeros(len(ids), bool)
+        where[absent] = True
+        missing_ids = tally(where, ids)
+    present = np.delete(hashes, absent) if len(absent) else hashes
+    ordered = np.sort(present)
+    twins = ordered[1:] == ordered[:-1]
+    if not np.any(twins):
+        return Tally(), missing_ids
     rows_of: dict[object, list[int]] = {}
-    for row in np.flatnonzero(np.isin(hashes, collided)):
+    for row in np.flatnonzero(np.isin(hashes, np.unique(ordered[1:][twins]))):
         if ids[row] is not None:
             rows_of.setdefault(ids[row], []).append(int(row))
     shared = sorted(r for rows in rows_of.values() if len(rows) > 1 for r in rows)
     return Tally(len(shared), tuple(shared[:EXAMPLES]),
-                 tuple(ids[r] for r in shared[:EXAMPLES]))
+                 tuple(ids[r] for r in shared[:EXAMPLES])), missing_ids
 
 
 def _plain(value):
@@ -173,10 +183,11 @@ def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool)
         codes, distinct = table.categories(name)
         problems += _level_findings(plan, table, variable, codes, distinct)
     if name == plan.data.row_id:
-        found.append((repeated(values), "identifier values repeated (row_id must be unique)",
+        repeats, absent = identifier_faults(values)
+        found.append((repeats, "identifier values repeated (row_id must be unique)",
                       "duplicate-id", None))
-        found.append((missing(values), "identifier missing (row_id must be complete)",
-                      "missing-id", None))
+        found.append((absent, "identifier missing (row_id must be complete)", "missing-id",
+                      None))
     problems += [_problem(plan, table, name, t, message, code, hint)
                  for t, message, code, hint in found if t.count]
     if variable.max_missing is not None:

@@ -256,7 +256,11 @@ def _read_pandas(plan: Plan, path: Path, fmt: str):
     finally:
         hashing.join()
     header = [str(c) for c in frame.columns]
-    if fmt == "xpt":  # SAS names are case-insensitive and stored upper-case by many writers
+    if fmt == "xpt":
+        # pandas reads some IBM-format zeros as 16**-65 (pandas-dev/pandas#50670): a zero mantissa
+        # is zero whatever the exponent, and no study value is that tiny
+        for name in frame.columns[frame.dtypes == np.float64]:
+            frame[name] = frame[name].mask(frame[name].abs() == 16.0 ** -65, 0.0)  # SAS names are case-insensitive and stored upper-case by many writers
         by_upper = {n.upper(): n for n in header}
         rename = {by_upper[v.name.upper()]: v.name for v in plan.variables
                   if v.name not in header and v.name.upper() in by_upper}
