@@ -1,0 +1,252 @@
+"""The speed-and-scale benchmark: prespec against the script a statistician would write.
+
+Usage (from the checkout; `make bench` runs the first form):
+    .venv/bin/python bench/run.py [--rows N] [--repeat K] [--keep]
+    .venv/bin/python bench/run.py --streamed-big [--big-rows N] [--keep]
+
+Writes seeded data under bench/data/ (git-ignored): N rows (default 1,000,000) of a binary
+exposure, 20 continuous covariates and a continuous outcome, and a plan with four nested
+gaussian tiers (bench/data/bench.yaml). Then, alternating, each in a fresh subprocess so that
+its peak memory (ru_maxrss) is its own, it times:
+
+    prespec   `prespec run --unlocked` end to end, bundle included, into a fresh folder
+    script    pandas.read_csv of the used columns, one statsmodels formula fit (smf.ols) per
+              tier, and statsmodels.stats.anova.anova_lm(*fits) for the nested F table
+    limit     pyarrow.csv.read_csv of the used columns, plus the sha256 of the file
+
+and prints the medians, the ratios prespec/script (target ≤ 0.5) and prespec/limit (target
+≤ 1.5), each one's peak memory above an idle interpreter's against the in-memory size of the
+used columns (target ≤ 2×), and the start-up time of `prespec check`.
+
+--streamed-big writes a CSV of --big-rows rows (default 20,000,000, about 8 GB; needs about
+10 GB free under bench/data), times one `prespec run --unlocked --stream` on it, prints the
+wall time and peak memory (target ≤ 1.5 GB) and deletes the file unless --keep is given.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+DATA = HERE / "data"
+PYTHON = sys.executable
+PRESPEC = str(Path(PYTHON).parent / "prespec")
+COVARIATES = [f"c{j:02d}" for j in range(1, 21)]
+USED = ["y", "treated", *COVARIATES]
+TIERS = [("crude", []), ("demographic", COVARIATES[:5]), ("clinical", COVARIATES[5:12]),
+         ("full", COVARIATES[12:])]
+CHUNK = 250_000
+
+# Each measured child runs under this wrapper, which reports the child's own peak memory.
+WRAPPER = r"""
+import resource, subprocess, sys, time
+start = time.perf_counter()
+code = subprocess.call(sys.argv[1:], stdout=subprocess.DEVNULL)
+wall = time.perf_counter() - start
+peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss * 1024
+print(f"{code} {wall:.6f} {peak}")
+"""
+
+SCRIPT = r"""
+import sys
+import pandas as pd
+import statsmodels.formula.api as smf
+from statsmodels.stats.anova import anova_lm
+
+path, tiers = sys.argv[1], sys.argv[2:]
+frame = pd.read_csv(path, usecols=[t for t in tiers[-1].split("+")])
+fits = []
+for terms in tiers:
+    outcome, *rhs = terms.split("+")
+    fits.append(smf.ols(f"{outcome} ~ " + " + ".join(rhs), data=frame).fit())
+table = anova_lm(*fits)
+print(table.to_string(), file=sys.stderr)
+"""
+
+LIMIT = r"""
+import hashlib, sys
+import pyarrow.csv as pacsv
+path, columns = sys.argv[1], sys.argv[2].split(",")
+table = pacsv.read_csv(path, convert_options=pacsv.ConvertOptions(include_columns=columns))
+digest = hashlib.sha256()
+with open(path, "rb") as handle:
+    while block := handle.read(1 << 22):
+        digest.update(block)
+print(table.num_rows, digest.hexdigest(), file=sys.stderr)
+"""
+
+IDLE = "import sys"
+
+
+def generate(path: Path, rows: int, seed: int = 20240601) -> None:
+    """Seeded CSV: y, treated (0/1), c01…c20; y depends on the exposure and ten covariates."""
+    import numpy as np
+    import pyarrow as pa
+    import pyarrow.csv as pacsv
+
+    rng = np.random.default_rng(seed)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    effects = np.zeros(20)
+    effects[:10] = rng.normal(0, 0.5, 10)
+    writer = None
+    with path.open("wb") as sink:
+        for start in range(0, rows, CHUNK):
+            m = min(CHUNK, rows - start)
+            treated = (rng.random(m) < 0.5).astype(np.int64)
+            covariates = np.round(rng.normal(50, 10, (m, 20)), 3)
+            y = np.round(10 + 1.5 * treated + (covariates - 50) @ effects
+                         + rng.normal(0, 5, m), 3)
+            columns = {"y": y, "treated": treated}
+            columns.update({name: covariates[:, j] for j, name in enumerate(COVARIATES)})
+            batch = pa.table(columns)
+            if writer is None:
+                writer = pacsv.CSVWriter(sink, batch.schema)
+            writer.write_table(batch)
+        writer.close()
+
+
+def write_plan(path: Path, data: Path) -> None:
+    lines = ["prespec: 1", "study:", "  id: bench-million", "  title: Benchmark, seeded data",
+             "data:", f"  path: {data.name}", "variables:", "  y: {kind: continuous}",
+             "  treated: {kind: binary}"]
+    lines += [f"  {name}: {{kind: continuous}}" for name in COVARIATES]
+    lines += ["analyses:", "  - id: main", "    outcome: y", "    family: gaussian",
+              "    exposure: treated", "    tiers:"]
+    for name, added in TIERS:
+        lines.append(f"      - name: {name}")
+        if added:
+            lines.append(f"        add: [{', '.join(added)}]")
+    lines += ["    report_tier: full", "decisions:", "  - id: H1", "    analysis: main",
+              "    test: superiority"]
+    path.write_text("\n".join(lines) + "\n")
+
+
+def measure(command: list[str]) -> tuple[float, int]:
+    """(wall seconds, peak bytes) of one fresh child process."""
+    done = subprocess.run([PYTHON, "-c", WRAPPER, *command], capture_output=True, text=True,
+                          cwd=ROOT)
+    code, wall, peak = done.stdout.split()
+    if code != "0":
+        raise SystemExit(f"benchmark child failed ({code}): {' '.join(command)}\n{done.stderr}")
+    return float(wall), int(peak)
+
+
+def tier_formulas() -> list[str]:
+    """'y+treated+c01+…' per tier, for the hand-written script."""
+    terms = ["y", "treated"]
+    out = []
+    for _, added in TIERS:
+        terms = terms + added
+        out.append("+".join(terms))
+    return out
+
+
+def prespec_command(plan: Path, out_root: Path, extra=()) -> list[str]:
+    out = tempfile.mkdtemp(prefix="run-", dir=out_root)
+    os.rmdir(out)  # a bundle is never written into an existing folder
+    return [PRESPEC, "run", str(plan), "--unlocked", "--out", out, *extra]
+
+
+def megabytes(n: float) -> str:
+    return f"{n / 2**20:,.0f} MiB"
+
+
+def benchmark(rows: int, repeat: int, keep: bool) -> None:
+    data = DATA / f"bench-{rows}.csv"
+    plan = DATA / "bench.yaml"
+    if not data.exists():
+        print(f"writing {data.relative_to(ROOT)} ({rows:,} rows)", flush=True)
+        generate(data, rows)
+    write_plan(plan, data)
+    out_root = Path(tempfile.mkdtemp(prefix="prespec-bench-"))
+    used_bytes = rows * len(USED) * 8  # float64 columns in memory
+    commands = {
+        "prespec": lambda: prespec_command(plan, out_root),
+        "script": lambda: [PYTHON, "-c", SCRIPT, str(data), *tier_formulas()],
+        "limit": lambda: [PYTHON, "-c", LIMIT, str(data), ",".join(USED)],
+    }
+    try:
+        times = {name: [] for name in commands}
+        peaks = {name: [] for name in commands}
+        measure(commands["limit"]())  # warm the page cache: every contender reads a cached file
+        for round_ in range(repeat):
+            for name, command in commands.items():
+                wall, peak = measure(command())
+                times[name].append(wall)
+                peaks[name].append(peak)
+            print(f"round {round_ + 1}/{repeat}: " + ", ".join(
+                f"{n} {times[n][-1]:.2f} s" for n in commands), flush=True)
+        idle = statistics.median(measure([PYTHON, "-c", IDLE])[1] for _ in range(3))
+        check = statistics.median(measure([PRESPEC, "check", str(plan)])[0] for _ in range(5))
+    finally:
+        shutil.rmtree(out_root, ignore_errors=True)
+        if not keep:
+            data.unlink(missing_ok=True)
+    median = {name: statistics.median(values) for name, values in times.items()}
+    print(f"\n{rows:,} rows × {len(USED)} used columns "
+          f"({megabytes(used_bytes)} as float64), {repeat} rounds, medians:")
+    for name in commands:
+        peak = statistics.median(peaks[name])
+        print(f"  {name:8s} {median[name]:7.2f} s   peak {megabytes(peak)} "
+              f"({megabytes(peak - idle)} above an idle interpreter, "
+              f"{(peak - idle) / used_bytes:.2f}× the used columns)")
+    print(f"  prespec / script = {median['prespec'] / median['script']:.2f}  (target ≤ 0.5)")
+    print(f"  prespec / limit  = {median['prespec'] / median['limit']:.2f}  (target ≤ 1.5)")
+    print(f"  prespec memory above baseline = "
+          f"{(statistics.median(peaks['prespec']) - idle) / used_bytes:.2f}× the used columns "
+          f"(target ≤ 2)")
+    print(f"  prespec check start-up = {check:.3f} s  (target < 1)")
+
+
+def streamed_big(rows: int, keep: bool) -> None:
+    free = shutil.disk_usage(DATA if DATA.exists() else HERE).free
+    need = rows * 420  # about 400 bytes a row, and some room
+    if free < need:
+        raise SystemExit(f"--streamed-big needs about {megabytes(need)} free under "
+                         f"{DATA}; {megabytes(free)} are free")
+    data = DATA / f"bench-{rows}.csv"
+    plan = DATA / "bench-big.yaml"
+    out_root = Path(tempfile.mkdtemp(prefix="prespec-bench-"))
+    try:
+        if not data.exists():
+            print(f"writing {data.relative_to(ROOT)} ({rows:,} rows)", flush=True)
+            started = time.perf_counter()
+            generate(data, rows)
+            print(f"  written in {time.perf_counter() - started:.0f} s, "
+                  f"{data.stat().st_size / 1e9:.1f} GB", flush=True)
+        write_plan(plan, data)
+        wall, peak = measure(prespec_command(plan, out_root, ["--stream"]))
+        print(f"\nstreamed run on {rows:,} rows ({data.stat().st_size / 1e9:.1f} GB CSV): "
+              f"{wall:.1f} s, peak {megabytes(peak)} (target ≤ 1.5 GB)")
+    finally:
+        shutil.rmtree(out_root, ignore_errors=True)
+        if not keep:
+            data.unlink(missing_ok=True)
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--rows", type=int, default=1_000_000)
+    parser.add_argument("--repeat", type=int, default=5)
+    parser.add_argument("--keep", action="store_true", help="keep the generated data file")
+    parser.add_argument("--streamed-big", action="store_true",
+                        help="one streamed run on a CSV of --big-rows rows")
+    parser.add_argument("--big-rows", type=int, default=20_000_000)
+    args = parser.parse_args()
+    if args.streamed_big:
+        streamed_big(args.big_rows, args.keep)
+    else:
+        benchmark(args.rows, args.repeat, args.keep)
+
+
+if __name__ == "__main__":
+    main()
