@@ -120,7 +120,8 @@ class Tree:
         for step in path:
             if isinstance(node, Mapping) and isinstance(step, str) and step in node.entries:
                 node = node.entries[step]
-            elif isinstance(node, Sequence) and isinstance(step, int) and 0 <= step < len(node.items):
+            elif (isinstance(node, Sequence) and isinstance(step, int)
+                  and 0 <= step < len(node.items)):
                 node = node.items[step]
             else:
                 break
@@ -262,9 +263,10 @@ def _compose(text: str, source: str):
                     hint=refused.hint, code=refused.code) from None
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
-        message = " ".join(part for part in (exc.context, exc.problem) if part) or "YAML syntax error"
+        message = " ".join(part for part in (exc.context, exc.problem) if part) or "unreadable"
         line, col = (mark.line + 1, mark.column + 1) if mark else (1, 1)
-        raise _stop(source, f"YAML syntax error: {message}", line, col, code="yaml-syntax") from None
+        raise _stop(source, f"YAML syntax error: {message}", line, col,
+                    code="yaml-syntax") from None
     except yaml.reader.ReaderError as exc:
         position = exc.position
         if _Composer.reader_offsets_in_bytes:
@@ -279,7 +281,8 @@ def _compose(text: str, source: str):
         if composer is not None:
             composer.dispose()
     if composer.tags:
-        raise Stop([Problem(f"YAML tag `{tag.replace('tag:yaml.org,2002:', '!!')}` is not allowed", _place(source, mark),
+        raise Stop([Problem(f"YAML tag `{tag.replace('tag:yaml.org,2002:', '!!')}` is not allowed",
+                            _place(source, mark),
                             hint="plans are plain data: remove the tag", code="yaml-tag")
                     for tag, mark in composer.tags], Exit.PLAN_INVALID)
     if graph is not None and composer.aliases:
@@ -305,7 +308,8 @@ def _check_alias_expansion(graph, first_alias: Place) -> None:
     if expanded - unique > MAX_ALIAS_EXPANSION:
         raise _stop(first_alias.file, f"aliases would expand the plan to {expanded} values "
                     f"(more than {MAX_ALIAS_EXPANSION} beyond the {unique} written)",
-                    first_alias.line, first_alias.col, hint="write the values out instead of nesting aliases", code="alias-bomb")
+                    first_alias.line, first_alias.col,
+                    hint="write the values out instead of nesting aliases", code="alias-bomb")
 
 
 def _children(node) -> list:

@@ -10,6 +10,7 @@ plan is evaluated: a term is a declared variable name or a structured mapping, n
 
 from __future__ import annotations
 
+from .columns import INTERCEPT
 from .load import Mapping, Node, Scalar, Sequence, Tree
 from .plan import (
     PLAN_LANGUAGE_VERSION, Analysis, Condition, Covariance, DataSource, MinimumInformation,
@@ -93,11 +94,17 @@ def resolve(tree: Tree) -> Plan:
     root = tree.root
     study_node = root.get("study")
     study = Study(value(study_node, "id"), value(study_node, "title"), value(study_node, "version"))
-    for name, node in root.get("variables").entries.items():
+    variables = root.get("variables")
+    for name, node in variables.entries.items():
+        if name == INTERCEPT:
+            ctx.error(f"`{INTERCEPT}` is the label of the model's intercept column, so no "
+                      "variable may be named so", variables.key_places[name],
+                      code="reserved-name")
         ctx.variables[name] = _variable(ctx, name, node)
-    data = _data(ctx, root.get("data") or Mapping({}, {}, root.place))
+    empty = Mapping({}, {}, root.place)
+    data = _data(ctx, root.get("data") or empty)
     populations = tuple(_population(ctx, name, node)
-                        for name, node in (root.get("populations") or Mapping({}, {}, root.place)).entries.items())
+                        for name, node in (root.get("populations") or empty).entries.items())
     analyses = _analyses(ctx, root.get("analyses"), populations)
     decisions, assumptions, multiplicity = resolve_rules(ctx, root, analyses)
     stop_if_errors(ctx.problems, Exit.PLAN_INVALID)
@@ -208,7 +215,8 @@ def _operand(ctx: Context, variable: Variable, op: str, node: Scalar):
             return level
         folded = [lv for lv in variable.levels if lv.casefold() == level.casefold()]
         hint = (f"levels match exactly, letter case included: did you mean `{folded[0]}`?" if folded
-                else did_you_mean(level, variable.levels) or f"levels: {', '.join(variable.levels)}")
+                else did_you_mean(level, variable.levels)
+                or f"levels: {', '.join(variable.levels)}")
         ctx.error(f"`{level}` is not a level of `{name}`", node.place, hint=hint,
                   code="unknown-level")
         return None
@@ -228,7 +236,8 @@ def _operand(ctx: Context, variable: Variable, op: str, node: Scalar):
 # ---------------------------------------------------------------------------------------------
 
 
-def _analyses(ctx: Context, node: Sequence, populations: tuple[Population, ...]) -> tuple[Analysis, ...]:
+def _analyses(ctx: Context, node: Sequence,
+              populations: tuple[Population, ...]) -> tuple[Analysis, ...]:
     seen: dict[str, Place] = {}
     analyses = []
     for item in node.items:
@@ -269,7 +278,7 @@ def _analysis(ctx: Context, node: Mapping, populations: tuple[Population, ...]) 
                   f"({', '.join(tier_names)})", node.get("report_tier").place,
                   hint=did_you_mean(report_tier, tier_names), code="unknown-tier")
     minimum = node.get("minimum_information")
-    if minimum is not None and minimum.get("events_per_parameter") is not None and family == "gaussian":
+    if family == "gaussian" and minimum is not None and minimum.get("events_per_parameter"):
         ctx.error("events_per_parameter applies to binomial and poisson analyses, not gaussian",
                   minimum.key_places["events_per_parameter"], code="misplaced-key")
     return Analysis(

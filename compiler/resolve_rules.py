@@ -246,7 +246,8 @@ def _assumption(ctx: Context, node: Mapping, by_id: dict[str, Analysis], ids: di
         else:
             applies_to.append(decision.id)
     return Assumption(assumption_id, analysis.id, check, fallback, tuple(applies_to),
-                      p_below=value(node, "p_below", 0.05 if check == "constant-variance" else None),
+                      p_below=value(node, "p_below",
+                                    0.05 if check == "constant-variance" else None),
                       above=value(node, "above"), place=node.place)
 
 
@@ -301,8 +302,9 @@ def _family_membership(ctx: Context, root: Mapping, families: list[Multiplicity]
             if item.value not in family.decisions:
                 continue
             if item.value in member_of and member_of[item.value] is not family:
-                ctx.error(f"decision `{item.value}` already belongs to the {member_of[item.value].method} "
-                          f"family at line {member_of[item.value].place.line}", item.place,
+                first = member_of[item.value]
+                ctx.error(f"decision `{item.value}` already belongs to the {first.method} "
+                          f"family at line {first.place.line}", item.place,
                           code="two-families")
                 continue
             member_of[item.value] = family

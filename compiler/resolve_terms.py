@@ -35,7 +35,8 @@ def term_of(ctx: Context, node: Node, where: str, outcome: Variable | None,
                   f"{variable.kind}", var_node.place, code="kind-mismatch")
         return None
     if form == "power":
-        return Term("power", (variable.name,), degree=int(node.get("degree").value), place=node.place)
+        degree = int(node.get("degree").value)  # 2.0 passes the schema as an integer
+        return Term("power", (variable.name,), degree=degree, place=node.place)
     if form == "log":
         if variable.min is not None and variable.min <= 0:
             ctx.error(f"log({variable.name}) needs positive values, but `{variable.name}` may be "

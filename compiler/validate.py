@@ -80,14 +80,15 @@ def _problems(error, tree: Tree, root: dict) -> Iterator[Problem]:
             for sub in chosen:
                 yield from _problems(sub, tree, root)
             return
-        yield _union_problem(error, place, what, value, root)
+        yield _union_problem(error, place, value, root)
         return
     if rule == "additionalProperties":
         known = list(error.schema.get("properties", {}))
         for key in error.instance:
             if key in known:
                 continue
-            hint = did_you_mean(key, known) or (f"allowed here: {', '.join(known)}" if known else None)
+            hint = did_you_mean(key, known) or (
+                f"allowed here: {', '.join(known)}" if known else None)
             key_place = node.key_places.get(key, place) if isinstance(node, Mapping) else place
             yield Problem(f"unknown key `{key}`{_under(path)}", key_place, hint=hint,
                           code="unknown-key")
@@ -109,12 +110,13 @@ def _generic(error, place: Place, what: str, value: str, node) -> Problem:
     hint = None
     if rule == "type":
         expected = limit if isinstance(limit, list) else [limit]
-        message = f"{what} must be {' or '.join(_TYPE_WORDS[t] for t in expected)}, not {_kind_of(instance)} {value}"
+        wanted = " or ".join(_TYPE_WORDS[t] for t in expected)
+        message = f"{what} must be {wanted}, not {_kind_of(instance)} {value}"
         if "string" in expected and instance is not None and not isinstance(instance, (dict, list)):
             text = node.text if isinstance(node, Scalar) else _plain(instance)
             hint = f'put it in quotes to make it text: "{text}"'
         elif instance is None:
-            message = f"{what} must be {' or '.join(_TYPE_WORDS[t] for t in expected)}; it is empty"
+            message = f"{what} must be {wanted}; it is empty"
         elif expected == ["boolean"]:
             hint = "write true or false"
     elif rule == "enum":
@@ -165,7 +167,7 @@ def _chosen_branch(error, root: dict) -> list | None:
     return None
 
 
-def _union_problem(error, place: Place, what: str, value: str, root: dict) -> Problem:
+def _union_problem(error, place: Place, value: str, root: dict) -> Problem:
     branches = [_deref(b, root) for b in error.validator_value]
     forms = [b.get("title", "?") for b in branches]
     hint = None
