@@ -7,10 +7,13 @@ The lock is ``PLAN.lock.json`` beside the plan (``plans/x.yaml`` → ``plans/x.y
     canonical_plan  the canonical plan form (compiler.canonical), so a run can say what changed
     freeze          {sha256, file_sha256, language, tool, time}: the first freeze
     amendments      [{previous, new, reason, time, file_sha256, tool, digest_of_previous_entry}]
+    head            the digest of the last amendment (of the freeze record before any)
 
 The amendment log is a hash chain: each entry carries the digest (sha256 of the canonical
 bytes) of the entry before it, the first entry the digest of the freeze record, so editing,
-reordering or removing an entry breaks the chain. The lock is written indented for people
+reordering or removing an entry breaks the chain, and ``head`` covers the last entry.
+(Without a secret nothing stops a forger who recomputes every digest; the chain catches
+edits by hand, and each bundle keeps the lock's digest as it was run.) The lock is written indented for people
 to read in review; only its parsed content counts.
 """
 
@@ -97,7 +100,7 @@ def freeze(plan_path: str | Path):
     file_sha = sha256_hex(Path(plan_path).read_bytes())
     record = {"sha256": sha, "file_sha256": file_sha, "language": plan.language,
               "tool": TOOL, "time": now_utc()}
-    document = {"format": LOCK_FORMAT, "freeze": record, "amendments": [],
+    document = {"format": LOCK_FORMAT, "freeze": record, "amendments": [], "head": digest(record),
                 "plan": _plan_entry(plan_path, plan, sha, file_sha),
                 "canonical_plan": plan_form(plan)}
     _write(target, document)
@@ -133,7 +136,7 @@ def amend(plan_path: str | Path, reason: str):
     entry = {"previous": state.plan_sha256, "new": sha, "reason": reason.strip(),
              "time": now_utc(), "file_sha256": file_sha, "tool": TOOL,
              "digest_of_previous_entry": digest(previous_entry)}
-    document = {**document, "amendments": [*log, entry],
+    document = {**document, "amendments": [*log, entry], "head": digest(entry),
                 "plan": _plan_entry(plan_path, plan, sha, file_sha),
                 "canonical_plan": plan_form(plan)}
     _write(target, document)
@@ -202,6 +205,10 @@ def check_lock(document) -> list[str]:
                                 f"was {expected[:12]}")
             expected = entry["new"]
             previous_entry = entry
+        if document["head"] != digest(previous_entry):
+            last = f"amendment {len(log)}" if log else "the freeze record"
+            problems.append(f"the amendment chain is broken at {last}: it does not match the "
+                            "lock's head digest (it was edited)")
         if head != expected:
             problems.append(f"the lock holds plan {head[:12]}, but its log ends at {expected[:12]}"
                             " (an amendment is missing)")

@@ -19,6 +19,10 @@ from .canonical import canonical_bytes, differences, sha256_hex
 from .problems import Exit, Problem
 
 MAX_DIFFERENCES = 25
+# What an auditor reads first when a re-run differs: the inputs, then the verdicts.
+READING_ORDER = ("format", "preregistered", "rehearsal", "rehearsal_note", "rehearsal_settings",
+                 "plan", "data", "environment", "contract", "decisions", "assumptions",
+                 "analyses", "amendments", "lock")
 
 
 def verify(folder, *, data=None, key=None):
@@ -169,7 +173,10 @@ def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
                            settings=settings)
     if to_bytes(new) == old_bytes:
         return [], notes + [f"re-run on {data_path}: results.json is byte-identical"]
-    changed = differences(old, json.loads(to_bytes(new)))
+    new = json.loads(to_bytes(new))
+    changed = []
+    for part in [*READING_ORDER, *sorted(set(old) | set(new) - set(READING_ORDER))]:
+        changed += differences(old.get(part), new.get(part), path=part)
     shown = changed[:MAX_DIFFERENCES]
     if len(changed) > len(shown):
         shown.append(f"… and {len(changed) - len(shown)} more")

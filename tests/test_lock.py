@@ -175,3 +175,17 @@ def test_freeze_from_the_command_line_exits_0_and_amend_exits_4_when_unchanged(p
     assert main(["freeze", str(plan_file)]) == Exit.OK
     assert main(["amend", str(plan_file), "--reason", "none"]) == Exit.LOCK
     assert "nothing to amend" in capsys.readouterr().err
+
+
+def test_an_edited_last_amendment_is_caught_by_the_head_digest(plan_file):
+    path = _amended_twice(plan_file)
+    _rewrite(path, lambda d: d["amendments"][1].update(reason="nothing to see"))
+    stop = stop_of(lambda: lock.require_match(compile_plan(plan_file), plan_file))
+    assert "broken at amendment 2" in stop.problems[0].message
+
+
+def test_an_edited_freeze_time_is_caught_by_the_head_digest(plan_file):
+    lock.freeze(plan_file)
+    _rewrite(lock.lock_path(plan_file), lambda d: d["freeze"].update(time="2020-01-01T00:00:00Z"))
+    stop = stop_of(lambda: lock.require_match(compile_plan(plan_file), plan_file))
+    assert "broken at the freeze record" in stop.problems[0].message

@@ -1,0 +1,200 @@
+"""`prespec run` and `prespec rehearse`: from a plan and its data to a sealed bundle.
+
+    compile → lock check (run only) → read, bind, design, fit, decide → results.json
+            → report.html, report.pdf → seal (manifest.json, read-only, renamed into place)
+
+Every check that can refuse the run (plan, lock, existing bundle, signing key, data
+contract) comes before anything is written, so exit 2, 3 and 4 leave nothing behind.
+
+Bundle files: results.json, report.html, report.pdf, plan.yaml (the exact bytes run),
+plan.lock.json and manifest.json (+ manifest.sig when signed). plan.lock.json is the lock the
+run matched; for ``--unlocked`` runs and rehearsals, which match no lock, it is a stub
+(``{"format": "prespec-lock-stub/1", "locked": false, ...}``) saying why there is none.
+
+The report's dates come from ``SOURCE_DATE_EPOCH`` when set, else from the time the plan
+was frozen (its last amendment, if any), else from 1970-01-01 — never from the clock.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+
+from .canonical import canonical_bytes, sha256_hex
+
+LOCK_STUB_FORMAT = "prespec-lock-stub/1"
+DEFAULT_REHEARSAL_ROWS = 500
+
+
+def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key=None,
+        progress=True):
+    """The confirmatory run. Exit 4 unless the plan matches its lock (or ``unlocked``)."""
+    from . import lock, seal
+    from .pipeline import Stamp, analyse, compile_plan, data_path_for
+
+    plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
+    plan = compile_plan(plan_path)
+    state = None if unlocked else lock.require_match(plan, plan_path)
+    target = Path(out) if out else Path("out") / plan.study.id
+    seal.refuse_existing(target)
+    key = seal.load_signing_key(sign_key) if sign_key else None
+    data_path = data_path_for(plan, data)
+    _say(progress, f"reading and fitting {data_path}")
+    analysed = analyse(plan, data_path, stream=stream, progress=progress)
+    stamp = Stamp(preregistered=state is not None)
+    why = "this run did not use a lock (--unlocked)"
+    return _finish(analysed, stamp, plan_bytes=plan_bytes, state=state, stub_reason=why,
+                   target=target, key=key, settings=None, progress=progress)
+
+
+def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None,
+             effect=0.0, progress=True):
+    """A rehearsal on synthetic data, or on real data with one column scrambled."""
+    from . import seal
+    from .pipeline import Stamp, analyse, compile_plan, data_path_for
+    from .problems import Exit, Problem, Stop
+
+    plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
+    plan = compile_plan(plan_path)
+    if data is not None and scramble is None:
+        raise Stop([Problem("rehearse --data needs --scramble VAR: a rehearsal on real, "
+                            "unscrambled data would unblind the study", code="no-scramble")],
+                   Exit.PLAN_INVALID)
+    target = Path(out) if out else Path("out") / f"{plan.study.id}-rehearsal"
+    seal.refuse_existing(target)
+    if scramble is not None:
+        settings = {"source": "scrambled", "seed": seed, "rows": None, "effect": None,
+                    "scramble": scramble}
+        data_path = data_path_for(plan, data)
+        note = f"{data_path.name} with {scramble} scrambled, seed {seed}"
+    else:
+        count = rows or plan.data.expected_rows or DEFAULT_REHEARSAL_ROWS
+        settings = {"source": "synthetic", "seed": seed, "rows": count, "effect": effect,
+                    "scramble": None}
+        data_path = None
+        note = f"synthetic data, {count} rows, seed {seed}" + (
+            f", exposure effect {effect!r}" if effect else "")
+    _say(progress, f"rehearsing on {note}")
+    table = rehearsal_table(plan, settings, data_path)
+    analysed = analyse(plan, data_path, table=table)
+    stamp = Stamp(preregistered=False, rehearsal=True, note=note)
+    return _finish(analysed, stamp, plan_bytes=plan_bytes, state=None,
+                   stub_reason="a rehearsal never uses a lock", target=target, key=None,
+                   settings=settings, progress=progress)
+
+
+def rehearsal_table(plan, settings: dict, data_path):
+    """The table a rehearsal runs on, made again from its settings (verify uses this too)."""
+    from . import read
+    from .rehearse import scrambled_table, synthetic_table
+
+    if settings["source"] == "scrambled":
+        return scrambled_table(plan, read.read(plan, data_path), settings["scramble"],
+                               settings["seed"])
+    return synthetic_table(plan, rows=settings["rows"], seed=settings["seed"],
+                           effect=settings["effect"])
+
+
+def results_document(analysed, stamp, *, plan_bytes: bytes, state, settings) -> dict:
+    from . import results
+    from .environment import environment
+
+    return results.build(analysed, stamp=stamp, plan_file_sha256=sha256_hex(plan_bytes),
+                         lock=state, environment=environment(), rehearsal_settings=settings)
+
+
+def report_epoch(state) -> int:
+    """SOURCE_DATE_EPOCH when set (reproducible-builds.org), else the freeze time, else 0."""
+    from .lock import epoch_of
+
+    given = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if given.isdigit():
+        return int(given)
+    if state is not None:
+        return epoch_of(state.amended_at or state.frozen_at)
+    return 0
+
+
+def render(document: dict, results_bytes: bytes, fits, epoch: int) -> tuple[bytes, bytes]:
+    """report.html and report.pdf, each rendered once from the results document."""
+    from .render import render_html, render_pdf
+
+    plots = {fit.analysis: {"fitted": fit.diagnostics.fitted,
+                            "residuals": fit.diagnostics.residuals}
+             for fit in fits if fit.diagnostics is not None}
+    html = render_html(document, plots, results_sha256=sha256_hex(results_bytes))
+    return html.encode("utf-8"), render_pdf(html, epoch=epoch)
+
+
+def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, settings,
+            progress):
+    from . import results, seal
+    from .cli import Report
+    from .lock import now_utc
+
+    document = results_document(analysed, stamp, plan_bytes=plan_bytes, state=state,
+                                settings=settings)
+    results_bytes = results.to_bytes(document)
+    _say(progress, "rendering the report")
+    html, pdf = render(document, results_bytes, analysed.fits, report_epoch(state))
+    lock_bytes = state.data if state is not None else canonical_bytes(
+        {"format": LOCK_STUB_FORMAT, "locked": False, "stamp": stamp.banner, "why": stub_reason})
+    files = {"results.json": results_bytes, "report.html": html, "report.pdf": pdf,
+             "plan.yaml": plan_bytes, "plan.lock.json": lock_bytes}
+    about = {"stamp": stamp.banner,
+             "plan": {"id": document["plan"]["id"], "sha256": document["plan"]["sha256"],
+                      "file_sha256": document["plan"]["file_sha256"]},
+             "data": {"sha256": document["data"]["sha256"], "file": document["data"]["file"]},
+             "results": {"sha256": sha256_hex(results_bytes)},
+             "environment": document["environment"]}
+    _say(progress, f"sealing {target}")
+    manifest = seal.seal(target, files, about, run_at=now_utc(), key=key)
+    return Report(lines=summary_lines(target, document, stamp),
+                  payload=_payload(target, document, manifest))
+
+
+def summary_lines(target, document: dict, stamp) -> list[str]:
+    lines = [f"bundle {target}: {stamp.banner}"
+             + (f" ({stamp.note})" if stamp.rehearsal and stamp.note else "")]
+    lines += [f"{d['id']} {d['verdict']} — {d['reason']}" for d in document["decisions"]]
+    if stamp.rehearsal:
+        to_fix = rehearsal_findings(document)
+        if to_fix:
+            lines.append("rehearsal: fix before freezing:")
+            lines += [f"  {item}" for item in to_fix]
+        else:
+            lines.append("rehearsal: every tier fitted, every rule evaluable")
+    return lines
+
+
+def rehearsal_findings(document: dict) -> list[str]:
+    """What a rehearsal is for: tiers that did not fit cleanly and rules not evaluable."""
+    found = []
+    for analysis in document["analyses"]:
+        for tier in analysis["tiers"]:
+            if not tier["converged"] or tier["reason"]:
+                why = tier["reason"] or "the fit did not converge"
+                found.append(f"analyses[{analysis['id']}].tiers[{tier['name']}]: {why}")
+    found += [f"{d['id']} undetermined — {d['reason']}" for d in document["decisions"]
+              if d["verdict"] == "undetermined"]
+    return found
+
+
+def _payload(target, document: dict, manifest: dict) -> dict:
+    return {"bundle": str(target), "stamp": manifest["stamp"],
+            "verdicts": [{"id": d["id"], "verdict": d["verdict"], "reason": d["reason"]}
+                         for d in document["decisions"]],
+            "digests": {"plan": document["plan"]["sha256"],
+                        "plan_file": document["plan"]["file_sha256"],
+                        "data": document["data"]["sha256"],
+                        "results": manifest["results"]["sha256"],
+                        "manifest": manifest["manifest_sha256"]},
+            **({"rehearsal": {"ready": not rehearsal_findings(document),
+                              "to_fix": rehearsal_findings(document)}}
+               if document["rehearsal"] else {})}
+
+
+def _say(progress: bool, message: str) -> None:
+    if progress and sys.stderr.isatty():
+        print(f"prespec: {message}…", file=sys.stderr, flush=True)
