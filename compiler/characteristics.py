@@ -1,0 +1,134 @@
+"""The analysed sample's characteristics by exposure group: numbers for results.json.
+
+For one analysis, every variable it uses (outcome, covariates, offset, cluster; not an
+identifier) is summarised on the analysed rows, per exposure group and overall:
+continuous → mean, SD (n − 1 divisor), median and quartiles; count → the same (the report
+shows median [Q1, Q3]); binary → count and share of 1s; categorical → count and share per
+declared level. Missing counts are taken in the population's rows, before the complete-case
+step (the analysed rows have none by construction), using the same population conditions
+as bind (compiler.population.holds). A categorical or binary exposure defines the groups;
+any other exposure is summarised overall only, as a variable of its own.
+
+Quartiles are numpy.quantile's default: linear interpolation between order statistics
+(Hyndman & Fan 1996, definition 7). Everything returned is a plain int, float, str or None.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .bound import BoundData, Table
+from .plan import Analysis, Plan, Variable
+from .population import holds, missing_mask
+
+QUARTILES = "linear interpolation between order statistics (numpy default, Hyndman–Fan 7)"
+STREAMED = ("not computed: a streamed run never holds the data's columns, so the sample "
+            "is summarised by its flow only")
+EMPTY = "no analysed rows in this group"
+
+
+def summarise(plan: Plan, analysis: Analysis, bound: BoundData) -> dict:
+    """The characteristics of ``analysis``' sample (layout: see the module docstring)."""
+    if isinstance(analysis, BoundData):  # the brief names (plan, bound, analysis); accept both
+        analysis, bound = bound, analysis
+    table = bound.table
+    exposure = plan.variable(analysis.exposure)
+    grouped = exposure.kind in ("categorical", "binary")
+    names = [n for n in analysis.variables_used
+             if plan.variable(n).kind != "identifier" and not (grouped and n == exposure.name)]
+    sample = bound.sample(analysis.id)
+    base = {"exposure": exposure.name, "grouped": grouped, "quartiles": QUARTILES}
+    if any(n not in table.columns for n in (*names, exposure.name)) or sample.rows is None:
+        return {**base, "missing_basis": None, "groups": [], "overall": {"n": int(sample.flow.n)},
+                "variables": [], "exposure_missing": None, "reason": STREAMED}
+
+    analysed = np.zeros(table.rows_read, bool)
+    analysed[sample.rows] = True
+    population = _population(plan, analysis, table)
+    levels, group_masks = _groups(exposure, table) if grouped else ((), ())
+    everyone = np.ones(table.rows_read, bool)
+
+    def per_group(fn) -> tuple[list, dict]:
+        return [fn(m) for m in group_masks], fn(everyone)
+
+    variables = []
+    for name in names:
+        variable = plan.variable(name)
+        absent = missing_mask(variable, table)
+
+        def stats(group: np.ndarray, variable=variable, absent=absent) -> dict:
+            out = _describe(variable, table.columns[variable.name][analysed & group])
+            out["missing"] = int(np.count_nonzero(population & group & absent))
+            return out
+
+        groups, overall = per_group(stats)
+        role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
+                else "offset" if name == analysis.offset
+                else "cluster" if name == analysis.covariance.cluster else "covariate")
+        variables.append({"name": name, "role": role, "kind": variable.kind,
+                          "label": variable.label, "unit": variable.unit,
+                          "groups": groups, "overall": overall})
+
+    exposure_absent = missing_mask(exposure, table)
+    return {
+        **base, "missing_basis": "population",
+        "groups": [{"level": level, "n": int(np.count_nonzero(analysed & m)),
+                    "n_population": int(np.count_nonzero(population & m))}
+                   for level, m in zip(levels, group_masks)],
+        "overall": {"n": int(np.count_nonzero(analysed)),
+                    "n_population": int(np.count_nonzero(population))},
+        "variables": variables,
+        "exposure_missing": int(np.count_nonzero(population & exposure_absent)),
+        "reason": None,
+    }
+
+
+def _population(plan: Plan, analysis: Analysis, table: Table) -> np.ndarray:
+    keep = np.ones(table.rows_read, bool)
+    population = plan.population(analysis.population)
+    for condition in population.conditions if population else ():
+        keep &= holds(condition, plan.variable(condition.variable), table)
+    return keep
+
+
+def _groups(exposure: Variable, table: Table) -> tuple[tuple[str, ...], list[np.ndarray]]:
+    values = table.columns[exposure.name]
+    if exposure.kind == "binary":
+        return ("0", "1"), [values == 0.0, values == 1.0]
+    return exposure.levels, [values == level for level in exposure.levels]
+
+
+def _describe(variable: Variable, values: np.ndarray) -> dict:
+    n = int(len(values))
+    if variable.kind == "categorical":
+        counts = [int(np.count_nonzero(values == level)) for level in variable.levels]
+        return {"n": n, "levels": [{"level": level, "count": c,
+                                    "share": _ratio(c, n)} for level, c in
+                                   zip(variable.levels, counts)],
+                **({"reason": EMPTY} if n == 0 else {})}
+    if variable.kind == "binary":
+        ones = int(np.count_nonzero(values == 1.0))
+        return {"n": n, "count": ones, "share": _ratio(ones, n),
+                **({"reason": EMPTY} if n == 0 else {})}
+    if n == 0:
+        return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min", "max")),
+                "reason": EMPTY}
+    q1, median, q3 = np.quantile(values, [0.25, 0.5, 0.75])
+    out = {"n": n, "mean": _finite(np.mean(values)),
+           "sd": _finite(np.std(values, ddof=1)) if n >= 2 else None,
+           "median": _finite(median), "q1": _finite(q1), "q3": _finite(q3),
+           "min": _finite(np.min(values)), "max": _finite(np.max(values))}
+    if n < 2:
+        out["reason"] = "a standard deviation needs at least two rows"
+    return out
+
+
+def _ratio(count: int, n: int) -> float | None:
+    return count / n if n else None
+
+
+def _finite(x) -> float | None:
+    x = float(x)
+    return x if math.isfinite(x) else None

@@ -1,0 +1,234 @@
+"""The report's plots as inline SVG text whose bytes repeat from run to run.
+
+matplotlib is imported inside the functions (the report is the only user) and used through
+``Figure`` + ``FigureCanvasSVG``, never pyplot, so no global backend is switched. Settings
+live in a temporary ``rc_context``. Each plot gets its own id prefix, so several plots can
+sit inline in one HTML document without clashing ids, and carries no date or creator.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+from dataclasses import dataclass
+
+import numpy as np
+
+# Above this many points the residual plots show an evenly spaced subset (said in the caption).
+MAX_POINTS = 5000
+# The residual plots draw their points as one embedded image at this resolution: thousands of
+# vector markers would make the PDF slow to build and to open; axes and text stay vector.
+RASTER_DPI = 300
+
+_INK = "#222222"
+_GREY = "#8a8a8a"
+_RC = {
+    "svg.fonttype": "none",  # text stays text: small, searchable, drawn in the report's font
+    "font.family": "sans-serif",
+    "font.sans-serif": ["DejaVu Sans"],
+    "font.size": 7.5,
+    "axes.linewidth": 0.6,
+    "axes.edgecolor": _INK,
+    "axes.labelcolor": _INK,
+    "xtick.color": _INK,
+    "ytick.color": _INK,
+    "xtick.major.width": 0.6,
+    "ytick.major.width": 0.6,
+    "path.simplify": False,
+}
+
+
+@dataclass(frozen=True)
+class ForestRow:
+    """One dot and whisker: ``label`` on the left, the estimate and its interval."""
+
+    label: str
+    estimate: float | None
+    low: float | None
+    high: float | None
+    emphasis: bool = False  # the report tier
+
+
+def forest(rows: list[ForestRow], *, key: str, ratio: bool, axis_label: str) -> str:
+    """Dot-and-whisker plot, one row per entry, top to bottom; a log axis when ``ratio``.
+
+    Rows whose estimate is None keep their place and say "not estimable".
+    """
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import FixedLocator, FuncFormatter, NullLocator
+
+    height = 0.5 + 0.24 * max(len(rows), 1)
+    with _settings(key):
+        fig = Figure(figsize=(5.6, height))
+        ax = fig.add_axes((0.30, 0.55 / height * 0.9 + 0.05, 0.66, 1 - (0.55 / height + 0.1)))
+        ax.axvline(1.0 if ratio else 0.0, color=_GREY, linewidth=0.6, linestyle=(0, (3, 2)))
+        ys = np.arange(len(rows))[::-1]
+        for y, row in zip(ys, rows):
+            if row.estimate is None:
+                ax.text(0.5, y, "not estimable", transform=ax.get_yaxis_transform(),
+                        ha="center", va="center", color=_GREY, fontstyle="italic")
+                continue
+            if row.low is not None and row.high is not None:
+                ax.plot([row.low, row.high], [y, y], color=_INK, linewidth=1.1 if row.emphasis
+                        else 0.8, solid_capstyle="butt")
+            ax.plot([row.estimate], [y], marker="s" if row.emphasis else "o",
+                    markersize=4.2 if row.emphasis else 3.4, color=_INK,
+                    markerfacecolor=_INK if row.emphasis else "white", markeredgewidth=0.8)
+        ax.set_yticks(ys, [r.label for r in rows])
+        ax.set_ylim(-0.6, len(rows) - 0.4)
+        if ratio:
+            ax.set_xscale("log")
+            ax.xaxis.set_major_locator(FixedLocator(_ratio_ticks(*ax.get_xlim())))
+            ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
+            ax.xaxis.set_minor_locator(NullLocator())
+        ax.set_xlabel(axis_label)
+        ax.tick_params(axis="y", length=0)
+        for side in ("top", "right", "left"):
+            ax.spines[side].set_visible(False)
+        return _to_svg(fig, key)
+
+
+# Round ratios for a log axis, coarse to fine; each level adds to the one before.
+_RATIO_LEVELS = ((1.0, 2.0, 5.0), (1.5, 3.0, 7.0), (1.1, 1.25, 8.0, 9.0))
+
+
+def _ratio_ticks(low: float, high: float) -> list[float]:
+    """Tick values for a ratio axis over [low, high]: the finest level of round ratios
+    (1, 2, 5 per decade; then 1.5, 3, 7; then 1.1, 1.25, 8, 9) with at most seven ticks."""
+    chosen: list[float] = []
+    steps: set[float] = set()
+    for level in _RATIO_LEVELS:
+        steps |= set(level)
+        ticks = sorted({float(f"{s * 10.0 ** k:.6g}") for s in steps for k in range(-5, 5)})
+        inside = [t for t in ticks if low <= t <= high]
+        if len(inside) > 7 and len(chosen) >= 2:
+            break
+        chosen = inside
+    return chosen
+
+
+def thin(n: int) -> np.ndarray:
+    """Positions of the points a residual plot draws: all, or MAX_POINTS evenly spaced."""
+    if n <= MAX_POINTS:
+        return np.arange(n)
+    return np.unique(np.linspace(0, n - 1, MAX_POINTS).round().astype(np.int64))
+
+
+def residuals_vs_fitted(fitted: np.ndarray, residuals: np.ndarray, *, key: str,
+                        residual_label: str) -> str:
+    from matplotlib.figure import Figure
+
+    keep = thin(len(fitted))
+    with _settings(key):
+        fig = Figure(figsize=(2.9, 2.4))
+        ax = fig.add_axes((0.2, 0.18, 0.75, 0.76))
+        ax.axhline(0.0, color=_GREY, linewidth=0.6, linestyle=(0, (3, 2)))
+        _points(ax, fitted[keep], residuals[keep])
+        ax.set_xlabel("fitted value")
+        ax.set_ylabel(residual_label)
+        _plain_axes(ax)
+        return _to_svg(fig, key)
+
+
+def normal_quantiles(residuals: np.ndarray, *, key: str, residual_label: str) -> str:
+    """Sorted residuals against standard normal quantiles (Blom's plotting positions)."""
+    from matplotlib.figure import Figure
+    from scipy.stats import norm
+
+    n = len(residuals)
+    ordered = np.sort(residuals)
+    theoretical = norm.ppf((np.arange(1, n + 1) - 0.375) / (n + 0.25))
+    keep = thin(n)
+    with _settings(key):
+        fig = Figure(figsize=(2.9, 2.4))
+        ax = fig.add_axes((0.2, 0.18, 0.75, 0.76))
+        if n >= 2:
+            q1, q3 = np.quantile(ordered, [0.25, 0.75])
+            t1, t3 = norm.ppf([0.25, 0.75])
+            slope = (q3 - q1) / (t3 - t1)
+            line_x = np.array([theoretical[0], theoretical[-1]])
+            ax.plot(line_x, q1 + slope * (line_x - t1), color=_GREY, linewidth=0.6,
+                    linestyle=(0, (3, 2)))
+        _points(ax, theoretical[keep], ordered[keep])
+        ax.set_xlabel("standard normal quantile")
+        ax.set_ylabel(residual_label)
+        _plain_axes(ax)
+        return _to_svg(fig, key)
+
+
+def _points(ax, x: np.ndarray, y: np.ndarray) -> None:
+    # One Line2D (not a scatter): matplotlib then writes one clip group for all markers.
+    ax.plot(x, y, linestyle="none", marker="o", markersize=2.2, markerfacecolor="none",
+            markeredgecolor=_INK, markeredgewidth=0.4, rasterized=True)
+
+
+def _plain_axes(ax) -> None:
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+
+
+def _settings(key: str):
+    import matplotlib
+
+    # The salt makes matplotlib's hashed ids depend on the plot, not on the process.
+    return matplotlib.rc_context({**_RC, "svg.hashsalt": f"prespec-{key}"})
+
+
+_ID = re.compile(r'\bid="([^"]+)"')
+
+
+def _to_svg(fig, key: str) -> str:
+    from matplotlib.backends.backend_svg import FigureCanvasSVG
+
+    FigureCanvasSVG(fig)
+    buffer = io.StringIO()
+    fig.savefig(buffer, format="svg", dpi=RASTER_DPI,
+                metadata={"Date": None, "Creator": None, "Format": None, "Type": None})
+    text = buffer.getvalue()
+    # Inline use: no XML prolog, no document-wide <style>, ids unique to this plot.
+    text = text[text.index("<svg"):]
+    text = re.sub(r"<style[^>]*>.*?</style>", "", text, flags=re.S)
+    text = re.sub(r"<defs>\s*</defs>", "", text)
+    prefix = re.sub(r"[^A-Za-z0-9_-]", "-", key)
+    for old in sorted(set(_ID.findall(text)), key=len, reverse=True):
+        new = f"{prefix}-{old}"
+        text = text.replace(f'id="{old}"', f'id="{new}"')
+        text = text.replace(f'href="#{old}"', f'href="#{new}"')
+        text = text.replace(f"url(#{old})", f"url(#{new})")
+    text = text.replace("<svg ", '<svg class="plot-svg" role="img" ', 1)
+    return _compact_markers(text).strip() + "\n"
+
+
+_USE = re.compile(r'^(\s*<use [^>]*?x=")([-0-9.]+)(" y=")([-0-9.]+)(")(?: style="([^"]*)")?(/>)$')
+
+
+def _compact_markers(text: str) -> str:
+    """Hoist the style all markers of a group share onto the group; 2 decimals suffice.
+
+    A residual plot draws thousands of identical markers; without this each repeats its
+    style and six decimals, tripling the size of the report.
+    """
+    lines = text.split("\n")
+    out: list[str] = []
+    i = 0
+    while i < len(lines):
+        line = lines[i]
+        j = i + 1
+        matches = []
+        while line.lstrip().startswith("<g clip-path=") and j < len(lines):
+            m = _USE.match(lines[j])
+            if not m:
+                break
+            matches.append(m)
+            j += 1
+        styles = {m.group(6) for m in matches}
+        if len(matches) < 20 or len(styles) != 1 or None in styles:
+            out.append(line)
+            i += 1
+            continue
+        out.append(line.replace("<g ", f'<g style="{styles.pop()}" ', 1))
+        for m in matches:
+            x, y = float(m.group(2)), float(m.group(4))
+            out.append(f"{m.group(1)}{x:.2f}{m.group(3)}{y:.2f}{m.group(5)}{m.group(7)}")
+        i = j
+    return "\n".join(out)

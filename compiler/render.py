@@ -1,0 +1,57 @@
+"""The render pass: results document → report.html (one self-contained file) → report.pdf.
+
+The view model (:mod:`compiler.viewmodel`) formats every value; the jinja2 templates in
+``templates/`` only lay it out. The PDF is WeasyPrint's rendering of the same HTML under the
+sheet's print rules; its dates and file identifier come from ``epoch`` (the plan's freeze
+time, or SOURCE_DATE_EPOCH), so the same inputs give the same bytes.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from datetime import datetime, timezone
+from functools import lru_cache
+
+from . import viewmodel
+from .resources import templates_dir
+
+
+def render_html(results: dict, plots: dict, *, results_sha256: str) -> str:
+    """The report as one HTML document: CSS inlined, plots as inline SVG, no scripts.
+
+    ``plots`` maps analysis id → {"fitted": ndarray, "residuals": ndarray} for the report
+    tier's residual plots; an analysis without an entry gets a note instead of plots.
+    """
+    view = viewmodel.build(results, plots, results_sha256=results_sha256)
+    env = _environment()
+    css = (templates_dir() / "report.css").read_text(encoding="utf-8")
+    from markupsafe import Markup
+
+    html = env.get_template("report.html").render(v=view, css=Markup(css))
+    return html
+
+
+def render_pdf(html: str, *, epoch: int) -> bytes:
+    """The same HTML through WeasyPrint, with creation and modification dates at ``epoch``
+    (seconds since 1970, UTC) and a file identifier derived from the HTML and the epoch."""
+    import logging
+
+    from weasyprint import HTML
+
+    # WeasyPrint reports unsupported CSS on its logger; the report's sheet is ours and known.
+    logging.getLogger("weasyprint").setLevel(logging.ERROR)
+    document = HTML(string=html, base_url=str(templates_dir())).render()
+    stamp = datetime.fromtimestamp(epoch, tz=timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+    document.metadata.created = stamp
+    document.metadata.modified = stamp
+    identifier = hashlib.sha256(html.encode("utf-8") + str(epoch).encode()).hexdigest()[:32]
+    return document.write_pdf(pdf_identifier=identifier.encode("ascii"))
+
+
+@lru_cache(maxsize=1)
+def _environment():
+    from jinja2 import Environment, FileSystemLoader, StrictUndefined
+
+    return Environment(loader=FileSystemLoader(str(templates_dir())), autoescape=True,
+                       undefined=StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+                       keep_trailing_newline=True)

@@ -1,0 +1,295 @@
+"""The view model of one analysis: tier tables, fit statistics, comparisons, the exposure
+across tiers (plot and table), report-tier diagnostics, and the sample's characteristics."""
+
+from __future__ import annotations
+
+from markupsafe import Markup
+
+from . import plots as plotting
+from . import report_format as f
+from .report_format import Cell, Notes
+
+RATIO_WORD = {"binomial": "odds ratio", "poisson": "rate ratio"}
+SCALE_WORD = {"gaussian": "difference", "binomial": "log odds ratio",
+              "poisson": "log rate ratio"}
+FAMILY_WORDS = {"gaussian": "linear regression (gaussian, identity link)",
+                "binomial": "logistic regression (binomial, logit link)",
+                "poisson": "Poisson regression (log link)"}
+
+# (key, label, families): the fit statistics table, in this order.
+FIT_STATISTICS = (
+    ("n_parameters", "parameters", {"gaussian", "binomial", "poisson"}),
+    ("df_resid", "residual df", {"gaussian", "binomial", "poisson"}),
+    ("rss", "residual sum of squares", {"gaussian"}),
+    ("sigma2", "residual variance", {"gaussian"}),
+    ("r_squared", "R²", {"gaussian"}),
+    ("adj_r_squared", "adjusted R²", {"gaussian"}),
+    ("deviance", "deviance", {"binomial", "poisson"}),
+    ("null_deviance", "null deviance", {"binomial", "poisson"}),
+    ("pearson_chi2", "Pearson χ²", {"binomial", "poisson"}),
+    ("dispersion", "dispersion (Pearson χ² / df)", {"binomial", "poisson"}),
+    ("log_likelihood", "log-likelihood", {"gaussian", "binomial", "poisson"}),
+    ("aic", "AIC", {"gaussian", "binomial", "poisson"}),
+    ("bic", "BIC", {"gaussian", "binomial", "poisson"}),
+    ("iterations", "IRLS iterations", {"binomial", "poisson"}),
+)
+
+
+def analysis_view(a: dict, plot_data: dict | None, notes: Notes) -> dict:
+    family = a["family"]
+    stat = "t" if family == "gaussian" else "z"
+    level = f.level(a["confidence"])
+    ratio = family in RATIO_WORD
+    return {
+        "id": a["id"],
+        "anchor": f"analysis-{a['id']}",
+        "facts": _facts(a),
+        "statistic": stat,
+        "level": level,
+        "tiers": [_tier_view(a, t, notes) for t in a["tiers"]],
+        "fit": _fit_table(a, notes),
+        "comparisons": [_comparison_row(c, notes) for c in a["comparisons"]],
+        "exposure_plot": _forest(a),
+        "exposure_caption": _forest_caption(a),
+        "exposure_rows": [_exposure_row(a, r, notes) for r in a["exposure"]],
+        "ratio": ratio,
+        "ratio_word": RATIO_WORD.get(family, ""),
+        "gaussian": family == "gaussian",
+        "sigma2": ({t["name"]: _cell(notes, t.get("sigma2"), t.get("reason"))
+                    for t in a["tiers"]} if family == "gaussian" else {}),
+        "diagnostics": _diagnostics(a, plot_data, notes),
+        "warnings": list(a.get("warnings") or []),
+        "notes": notes.items,
+    }
+
+
+def _facts(a: dict) -> list[tuple[str, str]]:
+    facts = [("model", FAMILY_WORDS[a["family"]]), ("outcome", a["outcome"]),
+             ("exposure", exposure_variable(a)),
+             ("population", a["population"] or "all rows"),
+             ("rows in population", f.integer(a["rows_in_population"])),
+             ("rows analysed", f.integer(a["n"]))]
+    if a.get("events") is not None:
+        facts.append(("events (outcome = 1)", f.integer(a["events"])))
+    if a.get("offset"):
+        facts.append(("offset", f"log({a['offset']})"))
+    facts += [("covariance", a["covariance"]), ("confidence", f.level(a["confidence"])),
+              ("report tier", a["report_tier"])]
+    return facts
+
+
+def exposure_variable(a: dict) -> str:
+    chars = a.get("characteristics") or {}
+    if chars.get("exposure"):
+        return chars["exposure"]
+    terms = [r["term"] for r in a["exposure"]]
+    return terms[0].split("=")[0] if terms else "(none)"
+
+
+def _cell(notes: Notes, value, reason, fmt=None) -> Cell:
+    return notes.cell(value, reason, fmt, default="not computed (no reason was recorded)")
+
+
+def _tier_view(a: dict, t: dict, notes: Notes) -> dict:
+    rows = []
+    for c in t["coefficients"]:
+        why = c.get("reason") or t.get("reason")
+        rows.append({"term": c["term"],
+                     "cells": [_cell(notes, c["estimate"], why), _cell(notes, c["std_error"], why),
+                               _cell(notes, c["statistic"], why),
+                               _cell(notes, c["p_value"], why, f.p_value),
+                               _cell(notes, c["ci_low"], why), _cell(notes, c["ci_high"], why)],
+                     "exposure": c["term"] in {r["term"] for r in a["exposure"]}})
+    added = ", ".join(t["terms_added"]) if t["terms_added"] else None
+    return {"name": t["name"], "report": t["name"] == a["report_tier"],
+            "added": added or "the exposure alone", "rows": rows,
+            "converged": t.get("converged", True), "warnings": list(t.get("warnings") or []),
+            "reason": t.get("reason")}
+
+
+def _fit_table(a: dict, notes: Notes) -> dict:
+    family = a["family"]
+    rows = [{"label": "rows analysed", "cells": [Cell(f.integer(a["n"])) for _ in a["tiers"]]}]
+    for key, label, families in FIT_STATISTICS:
+        if family not in families:
+            continue
+        fmt = f.integer if key in ("n_parameters", "df_resid", "iterations") else None
+        rows.append({"label": label,
+                     "cells": [_cell(notes, t.get(key), t.get("reason"), fmt)
+                               for t in a["tiers"]]})
+    if family != "gaussian":
+        rows.append({"label": "converged",
+                     "cells": [Cell("yes" if t.get("converged", True) else "no")
+                               for t in a["tiers"]]})
+    return {"tiers": [t["name"] for t in a["tiers"]], "rows": rows}
+
+
+def _comparison_row(c: dict, notes: Notes) -> dict:
+    df = f"{c['df_added']}" if c.get("df_denominator") is None else (
+        f"{c['df_added']}, {f.df(c['df_denominator'])}")
+    return {"step": f"{c['from']} → {c['to']}", "test": c["test"], "df": df,
+            "statistic": _cell(notes, c["statistic"], c.get("reason")),
+            "p": _cell(notes, c["p_value"], c.get("reason"), f.p_value)}
+
+
+def _exposure_row(a: dict, r: dict, notes: Notes) -> dict:
+    why = r.get("reason")
+    first = r["tier"] == a["tiers"][0]["name"]
+    change = (Cell("(first tier)", numeric=False) if first and r["change_from_first"] is None
+              else _cell(notes, r["change_from_first"], why, f.change))
+    cells = [_cell(notes, r["estimate"], why), _cell(notes, r["std_error"], why),
+             _cell(notes, r["ci_low"], why), _cell(notes, r["ci_high"], why)]
+    if a["family"] in RATIO_WORD:
+        cells += [_cell(notes, r["ratio"], why), _cell(notes, r["ratio_ci_low"], why),
+                  _cell(notes, r["ratio_ci_high"], why)]
+    return {"tier": r["tier"], "term": r["term"], "cells": cells, "change": change,
+            "report": r["tier"] == a["report_tier"]}
+
+
+def _forest(a: dict) -> Markup:
+    ratio = a["family"] in RATIO_WORD
+    several = len({r["term"] for r in a["exposure"]}) > 1
+    rows = []
+    terms = list(dict.fromkeys(r["term"] for r in a["exposure"]))
+    # Grouped by exposure level, tiers in plan order within each: the eye follows one level
+    # as adjustment grows.
+    for r in sorted(a["exposure"], key=lambda r: terms.index(r["term"])):
+        keys = ("ratio", "ratio_ci_low", "ratio_ci_high") if ratio else (
+            "estimate", "ci_low", "ci_high")
+        label = f"{r['term'].split('=', 1)[-1]} · {r['tier']}" if several else r["tier"]
+        rows.append(plotting.ForestRow(label, *(r[k] for k in keys),
+                                       emphasis=r["tier"] == a["report_tier"]))
+    axis = RATIO_WORD[a["family"]] + " (log scale)" if ratio else (
+        f"difference in {a['outcome']}")
+    return Markup(plotting.forest(rows, key=f"{a['id']}-exposure", ratio=ratio,
+                                  axis_label=axis))
+
+
+def _forest_caption(a: dict) -> str:
+    what = (f"{RATIO_WORD[a['family']]}s against the reference level, on a log axis"
+            if a["family"] in RATIO_WORD else "differences from the reference level")
+    return (f"The exposure in every tier: {what}, with {f.level(a['confidence'])} confidence "
+            f"intervals. The filled square is the report tier ({a['report_tier']}).")
+
+
+def _diagnostics(a: dict, plot_data: dict | None, notes: Notes) -> dict | None:
+    d = a.get("diagnostics")
+    if d is None:
+        return {"absent": "No diagnostics were computed for this analysis."}
+    why = d.get("reason")
+    residual_label = "standardized residual" if a["family"] == "gaussian" else "Pearson residual"
+    view = {
+        "absent": None, "tier": d["tier"],
+        "vif": [{"term": v["term"], "vif": _cell(notes, v["vif"], why),
+                 "high": v["vif"] is not None and v["vif"] > 10} for v in d["vif"]],
+        "normality_test": d["normality"]["test"] or "normality test",
+        "normality_statistic": _cell(notes, d["normality"]["statistic"], why),
+        "normality_p": _cell(notes, d["normality"]["p_value"], why, f.p_value),
+        "bp_statistic": _cell(notes, d["breusch_pagan"]["statistic"], why),
+        "bp_p": _cell(notes, d["breusch_pagan"]["p_value"], why, f.p_value),
+        "influential": [{"row_id": i["row_id"], "cooks": Cell(f.num(i["cooks_distance"]))}
+                        for i in d["influential"]],
+        "plots": None,
+        "plots_absent": "The residual plots were not drawn: the fitted values and residuals "
+                        "were not available to the report.",
+    }
+    if plot_data is not None and len(plot_data.get("fitted", ())) > 0:
+        fitted, residuals = plot_data["fitted"], plot_data["residuals"]
+        n = len(fitted)
+        shown = len(plotting.thin(n))
+        subset = ("" if shown == n else
+                  f" With {f.integer(n)} rows, every {n / shown:.3g}th row in data order is "
+                  f"drawn ({f.integer(shown)} points, evenly spaced).")
+        key = f"{a['id']}-{d['tier']}"
+        view["plots"] = {
+            "fitted": Markup(plotting.residuals_vs_fitted(
+                fitted, residuals, key=f"{key}-rvf", residual_label=residual_label)),
+            "quantiles": Markup(plotting.normal_quantiles(
+                residuals, key=f"{key}-qq", residual_label=residual_label)),
+            "caption": f"Tier {d['tier']}: {residual_label}s against fitted values (left) and "
+                       f"against standard normal quantiles (right).{subset}"}
+    return view
+
+
+# ---- characteristics -------------------------------------------------------------------
+
+def characteristics_view(a: dict, notes: Notes) -> dict:
+    chars = a.get("characteristics")
+    if not chars:
+        return {"id": a["id"], "absent": "The sample's characteristics were not computed.",
+                "notes": notes.items}
+    groups = chars.get("groups") or []
+    header = [f"{g['level']} (n = {f.integer(g['n'])})" for g in groups]
+    header.append(f"all (n = {f.integer(chars['overall']['n'])})")
+    rows: list[dict] = []
+    for v in chars["variables"]:
+        cells = (v.get("groups") or []) + [v["overall"]]
+        unit = f", {v['unit']}" if v.get("unit") else ""
+        name = f"{v['label']} ({v['name']}{unit})" if v.get("label") else f"{v['name']}{unit}"
+        role = "" if v.get("role") in (None, "covariate") else v["role"]
+        rows.append({"span": True, "variable": name, "role": role, "stat": "", "cells": [],
+                     "level": False})
+        kind = v["kind"]
+        if kind == "continuous":
+            rows.append(_row("mean (SD)", cells, _mean_sd, notes))
+            rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+        elif kind == "count":
+            rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+        elif kind == "binary":
+            rows.append(_row("n (%) with 1", cells, _count_share, notes))
+        else:
+            for i, lv in enumerate(lv["level"] for lv in v["overall"]["levels"]):
+                per = [_level_stat(c, i) for c in cells]
+                rows.append(_row(f"{lv}, n (%)", per, _count_share, notes, level=True))
+        if any(c.get("missing") for c in cells):
+            rows.append(_row("missing", cells, lambda c, _n: Cell(f.integer(c["missing"])),
+                             notes))
+    basis = chars.get("missing_basis")
+    missing_note = ("Missing counts are of the rows in the population, before complete-case "
+                    "exclusion; variables without a missing row had none."
+                    if basis == "population" else
+                    "The analysed rows have no missing values by construction; the sample "
+                    "flow lists the rows excluded for missing values.")
+    grouping = (f"by {chars['exposure']}" if chars.get("grouped") else
+                f"overall ({chars.get('exposure')} is not grouped: it is not categorical)")
+    return {"id": a["id"], "absent": None, "header": header, "rows": rows,
+            "caption": f"Analysed rows of {a['id']}, {grouping}. {missing_note} Quartiles by "
+                       f"{chars.get('quartiles') or 'linear interpolation'}.",
+            "notes": notes.items}
+
+
+def _row(stat, cells, fmt, notes, level=False) -> dict:
+    return {"span": False, "variable": "", "role": "", "stat": stat, "level": level,
+            "cells": [fmt(c, notes) for c in cells]}
+
+
+def _level_stat(c: dict, i: int) -> dict:
+    lv = c["levels"][i]
+    return {"n": c["n"], "count": lv["count"], "share": lv["share"], "reason": c.get("reason")}
+
+
+def _empty(c: dict, notes: Notes) -> Cell:
+    why = c.get("reason") or ("no analysed rows in this group" if c["n"] == 0 else
+                              "not computed (no reason was recorded)")
+    return Cell(f.DASH, notes.mark(why), why)
+
+
+def _mean_sd(c: dict, notes: Notes) -> Cell:
+    if c.get("mean") is None:
+        return _empty(c, notes)
+    if c.get("sd") is None:
+        why = c.get("reason") or "a standard deviation needs at least two rows"
+        return Cell(f"{f.num(c['mean'])} ({f.DASH})", notes.mark(why), why)
+    return Cell(f"{f.num(c['mean'])} ({f.num(c['sd'])})")
+
+
+def _median_iqr(c: dict, notes: Notes) -> Cell:
+    if c.get("median") is None:
+        return _empty(c, notes)
+    return Cell(f"{f.num(c['median'])} [{f.num(c['q1'])}, {f.num(c['q3'])}]")
+
+
+def _count_share(c: dict, notes: Notes) -> Cell:
+    if c.get("share") is None:
+        return _empty(c, notes)
+    return Cell(f"{f.integer(c['count'])} ({f.percent(c['share'])})")
