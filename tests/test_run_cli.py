@@ -252,3 +252,30 @@ def test_rehearse_on_real_data_needs_scramble(fresh, tmp_path, capsys):
     assert main(["rehearse", str(plan), "--data", str(data), "--out",
                  str(tmp_path / "r")]) == Exit.PLAN_INVALID
     assert "needs --scramble" in capsys.readouterr().err
+
+
+def test_a_scrambled_rehearsal_is_made_again_by_verify_from_the_same_file(fresh, tmp_path, quick):
+    plan, data = fresh
+    out = tmp_path / "r"
+    assert main(["rehearse", str(plan), "--data", str(data), "--scramble", "guidance",
+                 "--seed", "4", "--out", str(out)]) == Exit.OK
+    assert json.loads((out / "results.json").read_bytes())["rehearsal_settings"]["scramble"] == "guidance"
+    assert main(["verify", str(out), "--data", str(data)]) == Exit.OK
+
+
+def test_the_report_date_honours_source_date_epoch(monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1700000000")
+    assert bundle_module.report_epoch(None) == 1700000000
+
+
+def test_the_report_date_is_the_freeze_time_without_source_date_epoch(study, monkeypatch):
+    from compiler.lock import epoch_of, read_lock
+
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    state = read_lock(study[2] / "plan.lock.json")
+    assert bundle_module.report_epoch(state) == epoch_of(state.amended_at)
+
+
+def test_the_report_date_of_an_unlocked_run_is_fixed(monkeypatch):
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+    assert bundle_module.report_epoch(None) == 0
