@@ -238,7 +238,8 @@ def sample_findings(plan: Plan, analysis: Analysis, table: Table, sample: Sample
         codes, distinct = table.categories(exposure.name)
         levels = exposure.levels
     elif exposure.kind == "binary":
-        codes, distinct = table.columns[exposure.name].astype(np.int64), ("0", "1")
+        values = table.columns[exposure.name]
+        codes, distinct = np.where(values == 1, 1, np.where(values == 0, 0, -1)), ("0", "1")
         levels = ("0", "1")
     else:
         return []
@@ -273,6 +274,8 @@ def row_labels(plan: Plan, table: Table, rows) -> tuple[str, list[str]]:
 def _problem(plan: Plan, table: Table, column: str, found: Tally, message: str, code: str,
              hint: str | None) -> Problem:
     label, rows = row_labels(plan, table, found.rows)
+    if code == "duplicate-id":  # rows sharing an id are told apart by their numbers
+        label, rows = "row number", [str(r + 1) for r in found.rows]
     noun = "row" if found.count == 1 else "rows"
     if label == "row number":
         named = "; ".join(f"row {r}: {_show(v)}" for r, v in zip(rows, found.values))

@@ -15,7 +15,6 @@ from __future__ import annotations
 import csv
 import hashlib
 import io
-import re
 import threading
 from pathlib import Path
 
@@ -31,6 +30,11 @@ FORMATS = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", "
            ".xpt": "xpt", ".dta": "dta"}
 BLOCK = 4 << 20  # bytes pyarrow parses per block; also the hashing step
 # what pyarrow's float parser accepts, so that text found on the slow path matches the fast path
+HINTS = {  # a library's message → what the user can do about it
+    "invalid UTF8": "text columns must be UTF-8: save the file with UTF-8 encoding",
+    "not an XPORT file": "only SAS transport version 5 files are read (names of up to 8 "
+                         "characters); write the file as version 5",
+}
 NUMBER = r"^[+-]?((\d+\.?\d*|\.\d+)([eE][+-]?\d+)?|(?i:inf|infinity|nan))$"
 
 
@@ -49,7 +53,9 @@ def read(plan: Plan, path: str | Path) -> Table:
     except (OSError, ValueError, KeyError, EOFError, pa.ArrowException) as error:
         # the library's complaint, in one line: the file is not what its format says
         first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
-        raise _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable") from None
+        hint = next((h for cue, h in HINTS.items() if cue in first), None)
+        raise Stop([Problem(f"cannot read {path} as {fmt}: {first}", hint=hint,
+                            code="data-unreadable")], Exit.DATA_CONTRACT) from None
     declared = {v.name for v in plan.variables}
     columns: dict[str, np.ndarray] = {}
     unparsed: dict[str, Tally] = {}
@@ -193,28 +199,30 @@ def _present(plan: Plan, header: list[str]) -> list[str]:
 
 
 def _ragged(plan: Plan, path: Path, fmt: str, error: Exception) -> Stop:
-    """Translate pyarrow's parse error into the line, found by a serial (row-counting) pass."""
-    import pyarrow.csv as pacsv
+    """Name the line of the first record whose field count differs from the header's.
 
-    message = str(error)
-    try:  # only a single-threaded reader knows row numbers
-        pacsv.read_csv(path, read_options=pacsv.ReadOptions(use_threads=False),
-                       parse_options=pacsv.ParseOptions(delimiter="\t" if fmt == "tsv" else ","),
-                       convert_options=pacsv.ConvertOptions(include_columns=[]))
-    except pa.ArrowInvalid as serial:
-        message = str(serial)
-    found = re.search(r"Row #(\d+): Expected (\d+) columns, got (\d+): ?(.*)", message, re.S)
-    if not found:
-        return _stop(f"cannot read {path}: {message.splitlines()[0]}", "data-unreadable")
-    line, expected, got, excerpt = found.groups()
-    excerpt = excerpt.strip().splitlines()[0] if excerpt.strip() else ""
-    excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
-    return Stop([Problem(f"{path}: line {line} has {got} fields where the header has {expected}"
-                         + (f": {excerpt!r}" if excerpt else ""),
-                         hint="a field holding the delimiter must be quoted",
-                         code="ragged-row", details={"line": int(line), "fields": int(got),
-                                                     "expected": int(expected)})],
-                Exit.DATA_CONTRACT)
+    pyarrow's threaded reader does not know row numbers, and a serial one counts records, not
+    lines (blank lines and quoted line breaks shift them), so the line is found by Python's csv
+    module, which tracks physical lines.
+    """
+    delimiter = "\t" if fmt == "tsv" else ","
+    with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
+        records = csv.reader(f, delimiter=delimiter)
+        header = next(records, [])
+        line = records.line_num + 1
+        for fields in records:
+            if fields and len(fields) != len(header):
+                excerpt = delimiter.join(fields)
+                excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
+                return Stop([Problem(
+                    f"{path}: line {line} has {len(fields)} fields where the header has "
+                    f"{len(header)}: {excerpt!r}",
+                    hint="a field holding the delimiter must be quoted", code="ragged-row",
+                    details={"line": line, "fields": len(fields), "expected": len(header)})],
+                    Exit.DATA_CONTRACT)
+            line = records.line_num + 1
+    first = str(error).strip().splitlines()[0]
+    return _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
 
 
 # --- Parquet, xpt, dta -------------------------------------------------------------------

@@ -112,7 +112,8 @@ def test_a_repeated_row_id(tmp_path):
     problem = _only(_findings(tmp_path, _edit(4, "pid", "P02")), "duplicate-id")
     assert problem.column == "pid" and problem.details["rows"] == 2
     # the rows holding the repeated id are named by row number: the id cannot tell them apart
-    assert problem.details["values"] == ["P02", "P02"]
+    assert problem.details["example_by"] == "row number"
+    assert problem.details["examples"] == ["2", "5"] and problem.details["values"] == ["P02"] * 2
 
 
 def test_a_missing_row_id_is_named_by_row_number(tmp_path):

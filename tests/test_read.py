@@ -139,6 +139,16 @@ def test_a_ragged_row_names_its_line(tmp_path):
     assert "line 4 has 4 fields where the header has 6" in problem.message
 
 
+@pytest.mark.parametrize("before", ["\n", '"two\nlines",walk,40,0,1,120\n'])
+def test_a_ragged_row_is_named_by_its_physical_line(tmp_path, before):
+    # a blank line, or a quoted field with a line break, is one line more than one record
+    text = ROWS.splitlines()[0] + "\n" + before + "013,walk,NA,0\n"
+    stop = _stop(PLAN, _file(tmp_path, "d.csv", text))
+    line = 1 + before.count("\n") + 1
+    assert stop.problems[0].details["line"] == line
+    assert f"line {line} has 4 fields" in stop.problems[0].message
+
+
 def test_a_missing_file_is_a_clear_error(tmp_path):
     stop = _stop(PLAN, tmp_path / "absent.csv")
     assert "not found" in stop.problems[0].message
@@ -152,6 +162,22 @@ def test_an_unknown_extension_asks_for_data_format(tmp_path):
 def test_a_file_that_is_not_its_format_is_a_clear_error(tmp_path):
     stop = _stop(PLAN, _file(tmp_path, "d.parquet", ROWS))
     assert stop.problems[0].message.startswith("cannot read")
+
+
+def test_a_file_not_in_utf8_says_so(tmp_path):
+    stop = _stop(PLAN, _file(tmp_path, "d.csv", ROWS.replace("walk", "w\u00e4lk").encode("latin-1")))
+    assert "UTF-8" in stop.problems[0].hint
+
+
+def test_text_in_a_numeric_parquet_column_is_kept_for_the_contract(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    frame = pa.table({"pid": ["1", "2"], "arm": ["usual", "walk"], "age": ["40.5", "old"],
+                      "smoker": [0, 1], "visits": [1, 2], "sbp": [120.0, 130.0]})
+    pq.write_table(frame, tmp_path / "d.parquet")
+    table = read(PLAN, tmp_path / "d.parquet")
+    assert table.unparsed["age"].values == ("old",) and table.columns["age"][0] == 40.5
 
 
 # --- the same data in every format ----------------------------------------------------------
