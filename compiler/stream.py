@@ -24,7 +24,9 @@ from . import contract, population
 from .batches import FileFacts, NumbersAsText, batch_tables
 from .bound import BoundData, FlowStep, Sample, SampleFlow, Table, Tally
 from .plan import Analysis, Plan
-from .problems import Exit, Problem, stop_if_errors
+from .problems import Exit, Problem, Stop, stop_if_errors
+
+_NO_FLOW = SampleFlow(0, None, (), 0, (), 0)  # a batch's design needs rows, not the flow
 
 
 def streaming_format(plan: Plan, data_path: str | Path, forced: bool) -> str | None:
@@ -44,8 +46,9 @@ def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
     from .stream_fit import fit_streamed
 
     path = Path(data_path)
-    bound = _bind_pass(plan, path, fmt, progress)
-    fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt), progress)
+    bound, kept, firsts = _bind_pass(plan, path, fmt, progress)
+    fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt, kept[a.id]),
+                              progress, firsts.get(a.id))
                  for a in plan.analyses)
     if progress is not None:
         progress.done()
@@ -67,15 +70,23 @@ class _Column:
         self.tallies[code] = self.tallies.get(code, Tally()).merge(found)
 
 
-def _bind_pass(plan: Plan, path: Path, fmt: str, progress) -> BoundData:
+def _bind_pass(plan: Plan, path: Path, fmt: str, progress):
     try:
         return _bind_once(plan, path, fmt, progress, numbers_as_text=False)
     except NumbersAsText:  # as read.read: name every text value in a numeric column
         return _bind_once(plan, path, fmt, progress, numbers_as_text=True)
 
 
-def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool) -> BoundData:
+def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
+    """BoundData; per analysis, which rows are in its sample (one byte a row); and per
+    analysis its first fit pass (stream_fit.Decomposition), run alongside."""
+    from .design import design
+    from .stream_fit import Decomposition
+
     facts = FileFacts(str(path), fmt)
+    kept: dict[str, list] = {a.id: [] for a in plan.analyses}
+    decompositions = {a.id: Decomposition() for a in plan.analyses}
+    failed: set[str] = set()
     columns: dict[str, _Column] = {}
     flows: dict[str, SampleFlow] = {}
     seen_levels: dict[str, dict] = {}
@@ -92,6 +103,15 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool) -> BoundData
                 sample = population.draw(plan, analysis, table, masks)
                 flows[analysis.id] = _merge_flow(flows.get(analysis.id), sample.flow)
                 _exposure_levels(plan, analysis, table, sample, seen_levels)
+                keep = np.zeros(table.rows_read, bool)
+                keep[sample.rows] = True
+                kept[analysis.id].append(keep)
+                decomposition = decompositions[analysis.id]
+                if analysis.id not in failed and (len(sample.rows) or not decomposition.rows):
+                    try:
+                        decomposition.add(design(plan, analysis, BoundData(table, (sample,), ())))
+                    except Stop:  # the contract names it over all rows; or the refit will
+                        failed.add(analysis.id)
         _remember_ids(plan, table, offset, columns, example_ids)
         if progress is not None:
             progress.show(f"reading {path.name}: {offset + table.rows_read:,} rows")
@@ -113,7 +133,10 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool) -> BoundData
             plan, analysis, seen_levels.get(analysis.id, {}), sample))
         samples.append(sample)
     warnings = stop_if_errors(problems, Exit.DATA_CONTRACT)
-    return BoundData(meta, tuple(samples), warnings)
+    masks = {a: np.concatenate(k) if k else np.zeros(0, bool) for a, k in kept.items()}
+    firsts = {a: d.result() for a, d in decompositions.items()
+              if a not in failed and d.shape is not None}
+    return BoundData(meta, tuple(samples), warnings), masks, firsts
 
 
 def _needed(plan: Plan, analysis: Analysis) -> tuple[str, ...]:
@@ -289,8 +312,9 @@ def _level_findings(plan, wording: Table, variable, column: _Column) -> list[Pro
 
 # --- passes 2…: designs per batch ----------------------------------------------------------
 
-def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str):
-    """A function that starts a fresh pass and yields the analysis' Design batch by batch."""
+def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str, kept: np.ndarray):
+    """A function that starts a fresh pass and yields the analysis' Design batch by batch;
+    ``kept`` marks the sample's rows (pass 1 drew them)."""
     from .design import design
 
     def one_pass():
@@ -298,15 +322,15 @@ def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str):
         # pass 1 stopped the run on any text in a numeric column: numbers parse here
         for offset, table in batch_tables(plan, path, fmt, FileFacts(str(path), fmt),
                                           hashing=False):
-            sample = population.draw(plan, analysis, table)
-            if not len(sample.rows) and yielded:
+            rows = np.flatnonzero(kept[offset:offset + table.rows_read])
+            if not len(rows) and yielded:
                 continue
             if plan.data.row_id and plan.data.row_id in table.columns:
-                ids = table.columns[plan.data.row_id][sample.rows]
-            else:
-                ids = (sample.rows + offset + 1).astype(str).astype(object)
-            sample = replace(sample, row_ids=ids)
+                ids = table.columns[plan.data.row_id][rows]
+            else:  # 1-based data row numbers; made text only for the rows a report names
+                ids = rows + offset + 1
             yielded = True
+            sample = Sample(analysis.id, rows, ids, _NO_FLOW)
             yield design(plan, analysis, BoundData(table, (sample,), ()))
 
     return one_pass

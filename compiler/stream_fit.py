@@ -44,9 +44,15 @@ class FirstPass:
 
 
 def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
-                 progress=None) -> AnalysisFit:
-    """Every tier of ``analysis`` from streamed batches; raises Stop (exit 3) as fit.fit does."""
-    first = _first_pass(passes, progress, analysis.id)
+                 progress=None, first: "FirstPass | None" = None) -> AnalysisFit:
+    """Every tier of ``analysis`` from streamed batches; raises Stop (exit 3) as fit.fit does.
+    ``first``: the decomposition pass when the caller already ran it (alongside the bind)."""
+    if first is None:
+        decomposition = Decomposition()
+        for design in passes():
+            decomposition.add(design)
+            _show(progress, f"{analysis.id}: decomposing, {decomposition.rows:,} rows")
+        first = decomposition.result()
     header = first.header
     memory_fit._check_sizes(analysis, header)
     memory_fit._check_rank(plan, analysis, header, first.r)
@@ -68,25 +74,36 @@ def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
         warnings=tuple(w for tier in tiers for w in tier.warnings))
 
 
-def _first_pass(passes: DesignPasses, progress, analysis_id: str) -> FirstPass:
-    accumulator = None
-    shape = None
-    moments, events = [], 0
-    for design in passes():
-        if accumulator is None:
-            shape = design
-            accumulator = TsqrAccumulator(design.x.shape[1] + 1)
-        accumulator.add(np.column_stack([design.x, design.y]))
-        moments.append(moments_map((design.x, design.y, design.offset)))
-        events += int(np.sum(design.y == 1.0))
-        _show(progress, f"{analysis_id}: decomposing, {accumulator.rows:,} rows")
-    total = moments_combine(moments)
-    n, p = total.n, shape.x.shape[1]
-    # Broadcast views: the header answers shape questions and holds no rows.
-    header = replace(shape, x=np.broadcast_to(np.float64(0), (n, p)),
-                     y=np.broadcast_to(np.float64(0), (n,)), offset=None, cluster=None,
-                     row_ids=None)
-    return FirstPass(header, accumulator.r, total, events)
+class Decomposition:
+    """Pass 1 of a fit as a reduction: TSQR of [X | y], the row count, the outcome's sums
+    and the events, batch by batch (``add``), then ``result``."""
+
+    def __init__(self):
+        self.accumulator: TsqrAccumulator | None = None
+        self.shape: Design | None = None
+        self.moments: list[Moments] = []
+        self.events = 0
+
+    @property
+    def rows(self) -> int:
+        return 0 if self.accumulator is None else self.accumulator.rows
+
+    def add(self, design: Design) -> None:
+        if self.accumulator is None:
+            self.shape = design
+            self.accumulator = TsqrAccumulator(design.x.shape[1] + 1)
+        self.accumulator.add(np.column_stack([design.x, design.y]))
+        self.moments.append(moments_map((design.x, design.y, design.offset)))
+        self.events += int(np.sum(design.y == 1.0))
+
+    def result(self) -> FirstPass:
+        total = moments_combine(self.moments)
+        n, p = total.n, self.shape.x.shape[1]
+        # Broadcast views: the header answers shape questions and holds no rows.
+        header = replace(self.shape, x=np.broadcast_to(np.float64(0), (n, p)),
+                         y=np.broadcast_to(np.float64(0), (n,)), offset=None, cluster=None,
+                         row_ids=None)
+        return FirstPass(header, self.accumulator.r, total, self.events)
 
 
 def _show(progress, text: str) -> None:
