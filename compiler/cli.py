@@ -82,15 +82,22 @@ def _cmd_verify(args) -> Report:
 
 
 def build_parser() -> argparse.ArgumentParser:
+    def add_common(p: argparse.ArgumentParser, default) -> None:
+        p.add_argument("--json", action="store_true", default=default,
+                       help="print findings as one JSON document")
+        p.add_argument("--debug", action="store_true", default=default,
+                       help="show the traceback of an internal fault")
+
+    # The subcommands repeat the options with SUPPRESS defaults, so that `prespec --json check`
+    # and `prespec check --json` mean the same and neither overwrites the other.
     common = _Parser(add_help=False)
-    common.add_argument("--json", action="store_true", help="print findings as one JSON document")
-    common.add_argument("--debug", action="store_true", help="show the traceback of an internal fault")
+    add_common(common, argparse.SUPPRESS)
 
     parser = _Parser(
         prog="prespec",
         description="Check, freeze, rehearse and run a pre-specified analysis plan; "
-                    "seal the results for audit.",
-        parents=[common])
+                    "seal the results for audit.")
+    add_common(parser, False)
     parser.add_argument("--version", action="version", version=f"prespec {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True

@@ -73,11 +73,18 @@ class Condition:
             "above": ">", "below": "<",
         }
         if self.op in words:
-            return f"{self.variable} {words[self.op]} {self.value}"
+            return f"{self.variable} {words[self.op]} {_number(self.value)}"
         if self.op in ("in", "not_in"):
-            listed = ", ".join(str(v) for v in self.value)  # type: ignore[union-attr]
+            listed = ", ".join(_number(v) for v in self.value)  # type: ignore[union-attr]
             return f"{self.variable} {'in' if self.op == 'in' else 'not in'} {{{listed}}}"
         return f"{self.variable} is {'missing' if self.value else 'not missing'}"
+
+
+def _number(value: object) -> str:
+    """18.0 reads as 18; other values as written."""
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value)
 
 
 @dataclass(frozen=True)
