@@ -71,15 +71,18 @@ def flow_view(a: dict) -> dict:
     flow = a["flow"]
     steps = [{"label": "rows read", "count": f.integer(flow["rows_read"]), "kind": "total"}]
     for s in flow["by_condition"]:
-        steps.append({"label": f"not {s['reason']}", "count": f"{f.MINUS}{f.integer(s['excluded'])}",
+        steps.append({"label": f"not {s['reason']}", "count": _minus(s["excluded"]),
                       "kind": "out"})
     steps.append({"label": f"in population {a['population'] or '(all rows)'}",
                   "count": f.integer(flow["rows_in_population"]), "kind": "total"})
     for s in flow["by_missing"]:
-        steps.append({"label": s["reason"], "count": f"{f.MINUS}{f.integer(s['excluded'])}",
-                      "kind": "out"})
+        steps.append({"label": s["reason"], "count": _minus(s["excluded"]), "kind": "out"})
     steps.append({"label": "analysed", "count": f.integer(flow["n"]), "kind": "final"})
     return {"id": a["id"], "steps": steps}
+
+
+def _minus(excluded: int) -> str:
+    return f"{f.MINUS}{f.integer(excluded)}" if excluded else "0"
 
 
 def contract_view(results: dict) -> dict:

@@ -379,3 +379,25 @@ def plots(n: int = 537, seed: int = 7) -> dict:
     residuals = rng.standard_t(8, n)
     return {"primary": {"fitted": fitted, "residuals": residuals},
             "settled": {"fitted": rng.uniform(0.1, 0.8, n), "residuals": rng.normal(0, 1, n)}}
+
+
+def small_results(**kwargs) -> dict:
+    """The document cut to the gaussian analysis and its decisions: a quick PDF."""
+    document = results(**kwargs)
+    document["analyses"] = document["analyses"][:1]
+    document["decisions"] = [d for d in document["decisions"] if d["analysis"] == "primary"]
+    return document
+
+
+def tiny_results(**kwargs) -> dict:
+    """The gaussian analysis with its first and last tiers, no characteristics: a PDF of a
+    few pages that still holds every kind of section, plot and missing value."""
+    document = small_results(**kwargs)
+    analysis = document["analyses"][0]
+    analysis["tiers"] = [analysis["tiers"][0], analysis["tiers"][-1]]
+    names = {t["name"] for t in analysis["tiers"]}
+    analysis["exposure"] = [r for r in analysis["exposure"] if r["tier"] in names]
+    analysis["comparisons"] = analysis["comparisons"][:1]
+    analysis["characteristics"] = None
+    document["decisions"] = document["decisions"][:1]
+    return document

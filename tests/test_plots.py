@@ -1,0 +1,75 @@
+"""Inline SVG plots: same bytes every time, no dates, ids unique to each plot."""
+
+from __future__ import annotations
+
+import re
+
+import numpy as np
+import pytest
+
+from compiler import plots
+
+ROWS = [plots.ForestRow("leaflet · crude", -2.6, -5.2, -0.1),
+        plots.ForestRow("leaflet · full", -2.5, -4.3, -0.7, emphasis=True),
+        plots.ForestRow("coached · full", None, None, None)]
+
+
+@pytest.fixture(scope="module")
+def forest() -> str:
+    return plots.forest(ROWS, key="primary-exposure", ratio=False, axis_label="difference")
+
+
+def test_the_same_rows_give_the_same_svg_bytes(forest):
+    assert plots.forest(ROWS, key="primary-exposure", ratio=False,
+                        axis_label="difference") == forest
+
+
+def test_the_svg_carries_no_date_creator_or_prolog(forest):
+    assert "<dc:date" not in forest and "Matplotlib" not in forest
+    assert forest.startswith("<svg ") and "<?xml" not in forest and "<!DOCTYPE" not in forest
+
+
+def test_the_svg_sets_no_document_wide_style(forest):
+    assert "<style" not in forest
+
+
+def test_every_id_and_reference_carries_the_plot_key(forest):
+    ids = re.findall(r'\bid="([^"]+)"', forest)
+    assert ids and all(i.startswith("primary-exposure-") for i in ids)
+    refs = re.findall(r'(?:href="#|url\(#)([^")]+)', forest)
+    assert set(refs) <= set(ids)
+
+
+def test_two_plots_share_no_id(forest):
+    other = plots.forest(ROWS, key="settled-exposure", ratio=True, axis_label="odds ratio")
+    assert not set(re.findall(r'\bid="([^"]+)"', forest)) & set(
+        re.findall(r'\bid="([^"]+)"', other))
+
+
+def test_a_row_without_an_estimate_says_not_estimable(forest):
+    assert "not estimable" in forest
+
+
+def test_a_ratio_axis_labels_round_ratios_and_the_line_of_no_effect():
+    ticks = plots._ratio_ticks(0.6, 2.3)
+    assert 1.0 in ticks and 2.0 in ticks and len(ticks) <= 7
+
+
+def test_large_samples_are_thinned_evenly_to_the_first_and_last_row():
+    keep = plots.thin(1_000_000)
+    assert len(keep) == plots.MAX_POINTS
+    assert keep[0] == 0 and keep[-1] == 999_999
+    assert np.all(np.diff(keep) > 0)
+
+
+def test_small_samples_are_drawn_whole():
+    assert len(plots.thin(537)) == 537
+
+
+def test_the_residual_plots_repeat_their_bytes():
+    rng = np.random.default_rng(3)
+    fitted, residuals = rng.normal(size=300), rng.normal(size=300)
+    first = plots.normal_quantiles(residuals, key="q", residual_label="residual")
+    assert plots.normal_quantiles(residuals, key="q", residual_label="residual") == first
+    assert plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual") \
+        == plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual")
