@@ -18,7 +18,8 @@ from pathlib import Path
 from .canonical import canonical_bytes, differences, sha256_hex
 from .problems import Exit, Problem
 
-MAX_DIFFERENCES = 25
+MAX_DIFFERENCES = 25  # printed
+MAX_DIFFERENCES_JSON = 500  # in --json details
 # What an auditor reads first when a re-run differs: the inputs, then the verdicts.
 READING_ORDER = ("format", "preregistered", "rehearsal", "rehearsal_note", "rehearsal_settings",
                  "plan", "data", "environment", "contract", "decisions", "assumptions",
@@ -30,15 +31,16 @@ def verify(folder, *, data=None, key=None):
 
     folder = Path(folder)
     problems, lines = check_bundle(folder, key)
+    payload = {"bundle": str(folder), "intact": not problems, "rerun": None}
     if not problems:
         manifest = json.loads((folder / "manifest.json").read_bytes())
         lines.insert(0, f"{folder}: intact: {len(manifest['files'])} files match the manifest "
                         f"(manifest sha256 {manifest['manifest_sha256'][:12]}), {manifest['stamp']}")
+        payload.update(stamp=manifest["stamp"], manifest_sha256=manifest["manifest_sha256"])
         if data is not None:
             problems, more = rerun(folder, Path(data))
             lines += more
-    payload = {"bundle": str(folder), "intact": not problems,
-               "failures": [p.message for p in problems]}
+            payload["rerun"] = "different" if problems else "identical"
     return Report(exit_code=Exit.NOT_INTACT if problems else Exit.OK, lines=lines,
                   payload=payload, problems=tuple(problems))
 
@@ -182,4 +184,5 @@ def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
         shown.append(f"… and {len(changed) - len(shown)} more")
     message = (f"results.json: a re-run on {data_path} gives different results "
                f"({len(changed)} values differ):" + "".join(f"\n  {c}" for c in shown))
-    return [_fail(message, code="results-differ", file="results.json", differences=changed)], notes
+    return [_fail(message, code="results-differ", file="results.json", count=len(changed),
+                  differences=changed[:MAX_DIFFERENCES_JSON])], notes

@@ -20,11 +20,6 @@ from compiler.resources import schema_path
 DEMO = Path(__file__).resolve().parent.parent / "plans" / "dusk-sleep.yaml"
 
 
-def summarise(plan, analysis, bound) -> dict:
-    """A stand-in for the report's characteristics table (its layout is the report's)."""
-    return {"groups": [analysis.exposure], "n": int(bound.sample(analysis.id).flow.n)}
-
-
 @pytest.fixture(scope="module")
 def analysed() -> Analysed:
     plan = compile_plan(DEMO)
@@ -34,7 +29,7 @@ def analysed() -> Analysed:
 
 def build(analysed, stamp=Stamp(preregistered=True), **changes) -> dict:
     return results.build(analysed, stamp=stamp, plan_file_sha256="ab" * 32,
-                         environment=environment(), summarise=summarise, **changes)
+                         environment=environment(), **changes)
 
 
 def validator():
