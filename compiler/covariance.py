@@ -22,7 +22,7 @@ from __future__ import annotations
 import numpy as np
 
 from .plan import Covariance
-from .qr import row_chunks
+from .qr import one_blas_thread, row_chunks
 
 
 def reference_df(covariance: Covariance, family: str, df_resid: int,
@@ -55,7 +55,7 @@ def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,
     meats = [{c.label: np.zeros((w, w)) for c in kinds if c.kind != "cluster"} for w in widths]
     sums = [np.zeros((groups, w)) for w in widths] if clustered else None
     inverse = rinv[:top, :top]
-    with np.errstate(divide="ignore", invalid="ignore"):  # leverage 1: inf, judged later
+    with np.errstate(divide="ignore", invalid="ignore"), one_blas_thread():  # leverage 1: inf
         _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, needs_leverage,
                     meats, sums, groups)
     out = []

@@ -11,7 +11,7 @@ import numpy as np
 
 from .fitted import Design, Diagnostics, Influential
 from .inference import finite_or_none
-from .qr import row_chunks, triangular_inverse
+from .qr import one_blas_thread, row_chunks, triangular_inverse
 
 SHAPIRO_LIMIT = 5000  # scipy's Shapiro–Wilk p-value is stated accurate up to 5000 rows
 TOP_INFLUENTIAL = 5
@@ -31,20 +31,29 @@ def variance_inflation(r: np.ndarray, width: int, labels) -> tuple[tuple[str, fl
     return tuple((labels[j + 1], finite_or_none(rows[j] * norms[j])) for j in range(width - 1))
 
 
-def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray | None = None):
-    """Leverages h_i = ‖row i of W½X R⁻¹‖²."""
+def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray | None = None,
+                   squares: np.ndarray | None = None):
+    """Leverages h_i = ‖row i of W½X R⁻¹‖², and Q[:, 1:]ᵀ·squares for Breusch–Pagan, in one
+    pass over the rows."""
     n = x.shape[0]
     h = np.empty(n)
-    for rows in row_chunks(n):
-        xc = x[rows] if root_w is None else x[rows] * root_w[rows, None]
-        q = xc @ rinv
-        h[rows] = np.einsum("ij,ij->i", q, q)
-    return h
+    projected = np.zeros(rinv.shape[1] - 1)
+    with one_blas_thread():
+        for rows in row_chunks(n):
+            xc = x[rows] if root_w is None else x[rows] * root_w[rows, None]
+            q = xc @ rinv
+            h[rows] = np.einsum("ij,ij->i", q, q)
+            if squares is not None:
+                projected += q[:, 1:].T @ squares[rows]
+    return h, projected
 
 
 def _influential(cooks: np.ndarray, row_ids) -> tuple[Influential, ...]:
     """The largest Cook's distances; ties go to the earlier row."""
     finite = np.flatnonzero(np.isfinite(cooks))
+    if len(finite) > TOP_INFLUENTIAL:  # keep every row tied with the fifth largest
+        fifth = np.partition(cooks[finite], len(finite) - TOP_INFLUENTIAL)[-TOP_INFLUENTIAL]
+        finite = finite[cooks[finite] >= fifth]
     order = finite[np.lexsort((finite, -cooks[finite]))][:TOP_INFLUENTIAL]
     ids = row_ids if row_ids is not None else np.arange(1, len(cooks) + 1)
     return tuple(Influential(str(ids[i]), float(cooks[i])) for i in order)
@@ -64,19 +73,14 @@ def _normality(residuals: np.ndarray):
             finite_or_none(result.pvalue), None)
 
 
-def breusch_pagan(x: np.ndarray, rinv: np.ndarray, residuals: np.ndarray):
+def breusch_pagan(n: int, p: int, squares: np.ndarray, projected: np.ndarray):
     """Koenker's studentized Breusch–Pagan LM = n·R² of e² on the tier's columns, on χ²(p − 1)
     (Koenker 1981, J Econometrics 17:107–112; statsmodels' het_breuschpagan default).
-    R² from Q: the explained sum of squares is ‖Q[:, 1:]ᵀ e²‖², Q[:, 1:] being orthogonal
-    to the intercept."""
+    R² from Q: the explained sum of squares is ‖Q[:, 1:]ᵀ e²‖² (``projected``), Q[:, 1:]
+    being orthogonal to the intercept."""
     from scipy import special
 
-    n, p = x.shape
-    u = residuals ** 2
-    projected = np.zeros(p - 1)
-    for rows in row_chunks(n):
-        projected += (x[rows] @ rinv[:, 1:]).T @ u[rows]
-    centred = float(np.sum((u - u.mean()) ** 2))
+    centred = float(np.sum((squares - squares.mean()) ** 2))
     if centred <= 0.0 or p < 2:
         return None, None
     lm = n * float(projected @ projected) / centred
@@ -95,7 +99,8 @@ def gaussian_diagnostics(design: Design, tier_name: str, r: np.ndarray, width: i
                            fitted=np.zeros(0), residuals=np.zeros(0),
                            reason="exact fit: zero residual variance; residual diagnostics "
                            "are undefined")
-    h = _leverage_pass(x, rinv)
+    squares = residuals ** 2
+    h, projected = _leverage_pass(x, rinv, squares=squares)
     reasons = []
     with np.errstate(divide="ignore", invalid="ignore"):
         studentized = residuals / np.sqrt(sigma2 * (1.0 - h))
@@ -108,7 +113,7 @@ def gaussian_diagnostics(design: Design, tier_name: str, r: np.ndarray, width: i
     test, statistic, p_value, why = _normality(residuals)
     if why:
         reasons.append(why)
-    bp, bp_p = breusch_pagan(x, rinv, residuals)
+    bp, bp_p = breusch_pagan(x.shape[0], width, squares, projected)
     return Diagnostics(
         tier=tier_name, vif=vif, normality_test=test, normality_statistic=statistic,
         normality_p=p_value, breusch_pagan_statistic=bp, breusch_pagan_p=bp_p,
@@ -128,7 +133,7 @@ def glm_diagnostics(design: Design, family: str, tier_name: str, r_unweighted: n
                            fitted=np.zeros(0), residuals=np.zeros(0),
                            reason=f"{not_applicable}; {failure}")
     root_w = np.sqrt(weights)
-    h = _leverage_pass(design.x[:, :width], rinv, root_w)
+    h, _ = _leverage_pass(design.x[:, :width], rinv, root_w)
     pearson = (design.y - mu) / root_w
     with np.errstate(divide="ignore", invalid="ignore"):
         cooks = pearson ** 2 * h / (width * (1.0 - h) ** 2)

@@ -18,11 +18,26 @@ import numpy as np
 CHUNK_ROWS = 8192  # measured in bench/fit_bench.py: 4k–32k rows are all close on 21 columns
 
 
+def one_blas_thread():
+    """A context that runs BLAS/LAPACK on one thread: each chunk's work is small and sits in
+    cache, so waking threads for every call costs more than it saves — on a busy machine,
+    many times more (bench/fit_bench.py). Libraries loaded before entry are covered, so
+    import scipy.linalg first."""
+    from threadpoolctl import threadpool_limits
+
+    return threadpool_limits(limits=1, user_api="blas")
+
+
 def augmented_r(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None,
                 chunk_rows: int = CHUNK_ROWS) -> np.ndarray:
     """The (p + 1) × (p + 1) upper-triangular R of [W½X | W½y] (W = diag(weights))."""
     from scipy.linalg import lapack
 
+    with one_blas_thread():
+        return _augmented_r(lapack, x, y, weights, chunk_rows)
+
+
+def _augmented_r(lapack, x, y, weights, chunk_rows) -> np.ndarray:
     n, p = x.shape
     width = p + 1
     r = np.zeros((0, width))
