@@ -302,7 +302,7 @@ def test_contradictory_conditions_stop_with_the_condition_and_its_place():
     (problem,) = stop.problems
     assert problem.place == at
     assert "population elderly-young" in problem.message
-    assert "age < 30.0" in problem.message and "age ≥ 70.0" in problem.message
+    assert "age < 30" in problem.message and "age ≥ 70" in problem.message
 
 
 def test_a_bound_outside_the_declared_range_stops_with_the_range():

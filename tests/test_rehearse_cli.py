@@ -1,0 +1,100 @@
+"""`prespec rehearse` end to end, through the command line, on the demo plan."""
+
+from __future__ import annotations
+
+import hashlib
+import importlib.util
+import json
+from pathlib import Path
+
+import pytest
+
+import bundlekit
+from compiler import bundle as bundle_module
+from compiler.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "plans" / "dusk-sleep.yaml"
+
+
+def rehearse(*args: str) -> int:
+    return main(["rehearse", *args])
+
+
+def results(folder: Path) -> dict:
+    return json.loads((folder / "results.json").read_bytes())
+
+
+@pytest.fixture
+def quick(monkeypatch):
+    """results.json does not depend on the rendered report, so the PDF is skipped here
+    (test_run_cli checks a rehearsal's REHEARSAL stamp)."""
+    monkeypatch.setattr(bundle_module, "render", bundlekit.quick_render)
+
+
+def test_a_synthetic_rehearsal_exits_0_stamped_as_a_rehearsal(tmp_path, quick):
+    out = tmp_path / "seed-1"
+    assert rehearse(str(DEMO), "--out", str(out), "--seed", "1") == 0
+    document = results(out)
+    assert document["rehearsal"] is True and document["preregistered"] is False
+    assert document["data"]["rows_read"] == 600  # the demo plan's data.expected_rows
+
+
+def test_the_same_seed_gives_the_same_results_bytes(tmp_path, quick):
+    first, again = tmp_path / "first", tmp_path / "again"
+    assert rehearse(str(DEMO), "--out", str(first), "--seed", "1", "--effect", "0.4") == 0
+    assert rehearse(str(DEMO), "--out", str(again), "--seed", "1", "--effect", "0.4") == 0
+    assert (again / "results.json").read_bytes() == (first / "results.json").read_bytes()
+
+
+def test_another_seed_runs_on_other_data(tmp_path, quick):
+    one, other = tmp_path / "one", tmp_path / "other"
+    assert rehearse(str(DEMO), "--out", str(one), "--seed", "1", "--rows", "300") == 0
+    assert rehearse(str(DEMO), "--out", str(other), "--seed", "2", "--rows", "300") == 0
+    assert results(other)["data"]["sha256"] != results(one)["data"]["sha256"]
+    assert results(other)["data"]["rows_read"] == 300
+
+
+def _demo_data(folder: Path) -> Path:
+    spec = importlib.util.spec_from_file_location("make_demo_data", ROOT / "plans" / "make_demo_data.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)  # type: ignore[union-attr]
+    records = module.generate(400, 5)
+    path = folder / "blinded.csv"
+    lines = [",".join(records[0])] + [",".join(r.values()) for r in records]
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    return path
+
+
+def test_a_scrambled_rehearsal_keeps_the_real_files_digest(tmp_path, quick):
+    data = _demo_data(tmp_path)
+    out = tmp_path / "scrambled"
+    assert rehearse(str(DEMO), "--data", str(data), "--scramble", "guidance", "--seed", "3",
+                    "--out", str(out)) == 0
+    document = results(out)
+    assert document["rehearsal"] is True and document["preregistered"] is False
+    assert document["data"]["sha256"] == hashlib.sha256(data.read_bytes()).hexdigest()
+
+
+def test_scrambling_an_undeclared_column_exits_2_naming_it(tmp_path, capsys):
+    data = _demo_data(tmp_path)
+    code = rehearse(str(DEMO), "--data", str(data), "--scramble", "shoe_size",
+                    "--out", str(tmp_path / "never"))
+    assert code == 2 and "shoe_size" in capsys.readouterr().err
+    assert not (tmp_path / "never").exists()
+
+
+def test_a_population_no_row_can_meet_exits_2_at_its_condition(tmp_path, capsys):
+    text = DEMO.read_text(encoding="utf-8")
+    rule = "      - {variable: sessions_attended, at_least: 2}\n"
+    assert rule in text
+    impossible = "      - {variable: age, below: 17}\n"
+    text = text.replace(rule, rule + impossible)
+    plan = tmp_path / "impossible.yaml"
+    plan.write_text(text, encoding="utf-8")
+    line = text.splitlines().index(impossible.rstrip("\n")) + 1
+    code = rehearse(str(plan), "--out", str(tmp_path / "never"))
+    err = capsys.readouterr().err
+    assert code == 2
+    assert f"{plan}:{line}:" in err and "age < 17" in err
+    assert not (tmp_path / "never").exists()
