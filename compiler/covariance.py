@@ -55,7 +55,8 @@ def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,
     meats = [{c.label: np.zeros((w, w)) for c in kinds if c.kind != "cluster"} for w in widths]
     sums = [np.zeros((groups, w)) for w in widths] if clustered else None
     inverse = rinv[:top, :top]
-    with np.errstate(divide="ignore", invalid="ignore"), one_blas_thread():  # leverage 1: inf
+    # leverage 1 gives ∞ under HC2/HC3; judged (None with a reason) when the table is made
+    with np.errstate(divide="ignore", invalid="ignore"), one_blas_thread(n):
         _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, needs_leverage,
                     meats, sums, groups)
     out = []

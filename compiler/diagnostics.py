@@ -38,7 +38,7 @@ def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray | None = 
     n = x.shape[0]
     h = np.empty(n)
     projected = np.zeros(rinv.shape[1] - 1)
-    with one_blas_thread():
+    with one_blas_thread(n):
         for rows in row_chunks(n):
             xc = x[rows] if root_w is None else x[rows] * root_w[rows, None]
             q = xc @ rinv

@@ -13,16 +13,21 @@ copy of the data is ever made.
 
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 
 CHUNK_ROWS = 8192  # measured in bench/fit_bench.py: 4k–32k rows are all close on 21 columns
 
 
-def one_blas_thread():
-    """A context that runs BLAS/LAPACK on one thread: each chunk's work is small and sits in
-    cache, so waking threads for every call costs more than it saves — on a busy machine,
-    many times more (bench/fit_bench.py). Libraries loaded before entry are covered, so
-    import scipy.linalg first."""
+def one_blas_thread(rows: int):
+    """A context that runs BLAS/LAPACK on one thread when ``rows`` span several chunks: each
+    chunk's work is small and sits in cache, so waking threads for every call costs more
+    than it saves — on a busy machine, many times more (bench/fit_bench.py). Setting the
+    limit itself costs milliseconds, so a single chunk goes without. Libraries loaded
+    before entry are covered, so import scipy.linalg first."""
+    if rows <= CHUNK_ROWS:
+        return contextlib.nullcontext()
     from threadpoolctl import threadpool_limits
 
     return threadpool_limits(limits=1, user_api="blas")
@@ -33,7 +38,7 @@ def augmented_r(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None,
     """The (p + 1) × (p + 1) upper-triangular R of [W½X | W½y] (W = diag(weights))."""
     from scipy.linalg import lapack
 
-    with one_blas_thread():
+    with one_blas_thread(x.shape[0]):
         return _augmented_r(lapack, x, y, weights, chunk_rows)
 
 

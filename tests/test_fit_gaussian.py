@@ -233,3 +233,29 @@ def test_f_statistic_is_the_textbook_formula_with_scipy_p(case):
         assert comparison.statistic == pytest.approx(f, rel=1e-9)
         assert comparison.p_value == pytest.approx(
             stats.f.sf(f, small.df_resid - big.df_resid, big.df_resid), rel=1e-9, abs=1e-300)
+
+
+def test_chunked_qr_gives_the_r_factor_of_the_whole_matrix():
+    from compiler.qr import augmented_r
+
+    rng = np.random.default_rng(3)
+    x, y = rng.normal(size=(103, 5)), rng.normal(size=103)
+    r = augmented_r(x, y, chunk_rows=7)  # 15 chunks, the last one short
+    reference = np.linalg.qr(np.column_stack([x, y]), mode="r")  # reference library
+    # an R factor is unique up to the signs of its rows
+    np.testing.assert_allclose(np.abs(r), np.abs(reference), rtol=1e-10, atol=1e-12)
+
+
+def test_a_fit_over_many_chunks_matches_statsmodels():
+    from compiler.qr import CHUNK_ROWS
+
+    n = 3 * CHUNK_ROWS + 17
+    columns = _columns(n=n, seed=12)
+    d, result = _fit(columns, covariance=Covariance("HC3"))
+    reference = sm.OLS(d.y, d.x).fit(cov_type="HC3")  # reference library
+    full = result.tier("full")
+    np.testing.assert_allclose([c.estimate for c in full.coefficients], reference.params,
+                               rtol=1e-9)
+    np.testing.assert_allclose([c.std_error for c in full.coefficients], reference.bse,
+                               rtol=1e-9)
+    assert full.rss == pytest.approx(reference.ssr, rel=1e-10)
