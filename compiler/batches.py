@@ -10,6 +10,7 @@ for those rows. Positions in a batch's tallies are offset to the whole file.
 from __future__ import annotations
 
 import hashlib
+import os
 import threading
 from dataclasses import dataclass, field, replace
 from pathlib import Path
@@ -21,7 +22,7 @@ from . import read
 from .bound import Table, Tally
 from .plan import Plan
 
-BATCH_BYTES = 16 << 20  # CSV bytes parsed per batch
+BATCH_BYTES = 16 << 20  # CSV bytes parsed per batch; PRESPEC_STREAM_BATCH_BYTES overrides
 PARQUET_ROWS = 131_072
 
 
@@ -69,7 +70,7 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
         try:
             reader = pacsv.open_csv(
                 source,
-                read_options=pacsv.ReadOptions(use_threads=True, block_size=BATCH_BYTES),
+                read_options=pacsv.ReadOptions(use_threads=True, block_size=_batch_bytes()),
                 parse_options=pacsv.ParseOptions(delimiter=delimiter),
                 convert_options=pacsv.ConvertOptions(
                     include_columns=include, column_types=types or {include[0]: text},
@@ -90,6 +91,10 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
             facts.size_bytes = source.size
         else:
             facts.size_bytes = path.stat().st_size
+
+
+def _batch_bytes() -> int:
+    return int(os.environ.get("PRESPEC_STREAM_BATCH_BYTES") or BATCH_BYTES)
 
 
 class _Plain:

@@ -165,3 +165,69 @@ def test_streamed_text_in_a_numeric_column_is_reported_as_in_memory(tmp_path, sm
     with pytest.raises(Stop) as streamed:
         analyse(plan, csv, stream=True)
     assert streamed.value.problems == in_memory.value.problems
+
+
+PLAN_YAML = """\
+prespec: 1
+study: {id: stream-check, version: "1"}
+data: {path: trial.csv, row_id: pid}
+variables:
+  pid: {kind: identifier}
+  arm: {kind: categorical, levels: [control, light, strong], reference: control}
+  age: {kind: continuous, min: 0, max: 120}
+  dose: {kind: continuous}
+  score: {kind: continuous, max_missing: 0.5}
+  improved: {kind: binary}
+  events: {kind: count}
+  days: {kind: count, min: 1}
+populations:
+  adults: {where: [{variable: age, at_least: 18}]}
+analyses:
+  - id: linear
+    population: adults
+    outcome: score
+    family: gaussian
+    exposure: arm
+    tiers: [{name: crude}, {name: adjusted, add: [age, {power: age, degree: 2}, dose]}]
+    report_tier: adjusted
+  - id: counts
+    population: adults
+    outcome: events
+    family: poisson
+    exposure: arm
+    offset: days
+    tiers: [{name: crude}, {name: adjusted, add: [age, dose]}]
+    report_tier: adjusted
+decisions:
+  - {id: H1, analysis: linear, test: superiority, level: strong}
+  - {id: H2, analysis: counts, test: superiority, level: strong}
+assumptions:
+  - {id: A1, analysis: linear, check: constant-variance, p_below: 0.05,
+     fallback: {covariance: HC3}, applies_to: [H1]}
+"""
+
+
+def test_prespec_run_stream_writes_the_in_memory_results(tmp_path):
+    import json
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    simulated_csv(tmp_path / "trial.csv")
+    (tmp_path / "plan.yaml").write_text(PLAN_YAML)
+    prespec = str(Path(sys.executable).parent / "prespec")
+    documents = []
+    for extra in ([], ["--stream"]):
+        out = tmp_path / f"out{len(documents)}"
+        done = subprocess.run([prespec, "run", str(tmp_path / "plan.yaml"), "--unlocked",
+                               "--out", str(out), *extra], capture_output=True, text=True,
+                              env={**os.environ, "PRESPEC_STREAM_BATCH_BYTES": "8192",
+                                   "CI": "1"})
+        assert done.returncode == 0, done.stderr
+        documents.append(json.loads((out / "results.json").read_text()))
+    in_memory, streamed = documents
+    for analysis in (*in_memory["analyses"], *streamed["analyses"]):
+        # a streamed run holds no columns, so it has no sample characteristics (stated there)
+        analysis.pop("characteristics")
+    numbers_agree(in_memory, streamed, "results")
