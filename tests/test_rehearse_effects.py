@@ -1,0 +1,129 @@
+"""Rehearsal outcomes carry a known exposure effect; scrambling keeps the real values and sample.
+
+Fits that check a known effect use statsmodels (a reference library) on the design pass's own
+columns. Fixtures are plans built in code (tests/rehearsekit.py).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from compiler.bound import Table
+from compiler.plan import Analysis
+from compiler.problems import Exit, Stop
+from compiler.rehearse import scrambled_table, synthetic_table
+from rehearsekit import analysis, exposure_intervals, make_plan, real_table, term, tiers, written
+
+
+# --- outcomes from the plan's largest model -------------------------------------------------
+
+@pytest.mark.parametrize("family, outcome, effect", [
+    ("gaussian", "score", 4.0), ("binomial", "cured", 0.6), ("poisson", "events", -0.4),
+    ("gaussian", "score", 0.0)])
+def test_a_known_effect_is_recovered_within_its_interval_in_most_seeds(family, outcome, effect):
+    # Each 95 % interval covers with probability 0.95; 5 seeds, at least 4 covering both levels.
+    a = analysis(family, outcome, offset="months" if family == "poisson" else None)
+    plan = make_plan(analyses=[a])
+    covered = 0
+    for seed in range(5):
+        table = synthetic_table(plan, seed=seed, rows=600, effect=effect)
+        intervals = exposure_intervals(plan, a, table)
+        covered += all(low <= effect <= high for low, high in intervals)
+    assert covered >= 4
+
+
+def test_a_continuous_exposure_gets_the_effect_as_its_slope():
+    a = Analysis("age-slope", "score", "gaussian", "age",
+                 tiers("age", ("crude", ()), ("adjusted", (term("weight"), term("smoker")))),
+                 "adjusted")
+    plan = make_plan(analyses=[a], populations=())
+    intervals = [exposure_intervals(plan, a, synthetic_table(plan, seed=s, rows=400, effect=0.3))
+                 for s in range(5)]
+    assert sum(bool(low <= 0.3 <= high) for ((low, high),) in intervals) >= 4
+
+
+def test_expected_counts_are_proportional_to_the_offset():
+    # log(offset) fitted as a free covariate should get a coefficient of 1.
+    a = analysis("poisson", "events", offset="months")
+    plan = make_plan(analyses=[a])
+    covered = sum(
+        bool(low <= 1.0 <= high)
+        for s in range(5)
+        for low, high in exposure_intervals(plan, a, synthetic_table(plan, seed=s, rows=800),
+                                            free_offset=True))
+    assert covered >= 4
+
+
+def test_outcomes_sit_where_each_family_wants_them():
+    table = synthetic_table(make_plan(), seed=15, rows=3000)
+    score = table.columns["score"]
+    assert abs(np.nanmean(score) - 50) < 2 and 8 < np.nanstd(score) < 14  # noise sd = range / 10
+    assert 0.25 < table.columns["cured"].mean() < 0.35
+    assert 2.5 < table.columns["events"].mean() < 3.5
+
+
+# --- scrambling the real data ---------------------------------------------------------------
+
+
+def test_scrambling_permutes_the_named_column_by_the_seed_and_nothing_else():
+    table = real_table()
+    scrambled = scrambled_table(make_plan(), table, "arm", seed=5)
+    order = np.random.default_rng(5).permutation(50)  # the documented permutation
+    assert list(scrambled.columns["arm"]) == list(table.columns["arm"][order])
+    assert scrambled.columns["age"] is table.columns["age"]
+    assert scrambled.columns["pid"] is table.columns["pid"]
+    assert (scrambled.sha256, scrambled.path, scrambled.rows_read) == (table.sha256, table.path, 50)
+
+
+def test_scrambling_keeps_the_columns_values():
+    table = real_table()
+    scrambled = scrambled_table(make_plan(), table, "age", seed=1)
+    assert np.array_equal(np.sort(scrambled.columns["age"]), np.sort(table.columns["age"]))
+    assert not np.array_equal(scrambled.columns["age"], table.columns["age"])
+
+
+@pytest.mark.parametrize("name, said", [("dose", "not in the data dictionary"),
+                                        ("site", "not a column of data/final.csv")])
+def test_scrambling_an_unknown_column_stops_with_exit_2(name, said):
+    with pytest.raises(Stop) as caught:
+        scrambled_table(make_plan(), real_table(), name, seed=1)
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    assert said in caught.value.problems[0].message and name in caught.value.problems[0].message
+
+
+def test_scrambling_moves_reads_category_codes_with_the_values():
+    table = real_table()
+    codes, values = pd.factorize(table.columns["arm"])
+    table = Table(table.path, table.format, table.sha256, table.size_bytes, table.rows_read,
+                  table.columns, codes={"arm": (codes.astype(np.int32), tuple(values))})
+    scrambled = scrambled_table(make_plan(), table, "arm", seed=3)
+    codes, values = scrambled.categories("arm")
+    assert list(np.asarray(values, dtype=object)[codes]) == list(scrambled.columns["arm"])
+
+
+
+
+
+def test_read_loads_the_synthetic_csv_back_to_the_same_table(tmp_path):
+    plan = make_plan()
+    table = synthetic_table(plan, seed=16, rows=300)
+    again = written(plan, table, tmp_path)
+    assert again.sha256 == table.sha256 and again.rows_read == 300
+    for name, values in table.columns.items():
+        assert np.array_equal(again.columns[name], values, equal_nan=values.dtype != object), name
+
+
+def test_scrambling_changes_the_exposure_estimate_but_not_the_sample(tmp_path):
+    from compiler.pipeline import analyse
+
+    plan = make_plan()
+    real = written(plan, synthetic_table(plan, seed=17, rows=400, effect=0.8), tmp_path)
+    before = analyse(plan, None, table=real)
+    after = analyse(plan, None, table=scrambled_table(plan, real, "arm", seed=1))
+    for a in plan.analyses:
+        kept, moved = before.bound.sample(a.id), after.bound.sample(a.id)
+        assert np.array_equal(kept.rows, moved.rows) and kept.flow == moved.flow
+    for first, second in zip(before.fits, after.fits):
+        assert first.exposure[-1].estimate != pytest.approx(second.exposure[-1].estimate, abs=1e-6)
