@@ -121,3 +121,14 @@ def test_glm_robust_comparison_is_a_wald_chi_square():
     assert comparison.test == "Wald" and comparison.df_denominator is None
     assert comparison.statistic == pytest.approx(float(reference.statistic), rel=1e-6)
     assert comparison.p_value == pytest.approx(float(reference.pvalue), rel=1e-6)
+
+
+def test_a_single_cluster_gives_none_not_nan():
+    columns = _columns()
+    columns["site"] = np.asarray(["s00"] * N, dtype=object)
+    analysis = fk.analysis("y", "arm", [("crude", []), ("adjusted", ["age", "shift"])],
+                           covariance=Covariance("cluster", "site"))
+    plan = fk.plan(_variables(), [analysis])
+    result = fit(plan, analysis, design(plan, analysis, fk.bound(columns, [analysis])))
+    assert all(c.std_error is None and c.reason for c in result.tier("adjusted").coefficients)
+    assert all(np.isfinite(v) for _, v in fk.walk_numbers(result))
