@@ -195,8 +195,27 @@ def _to_svg(fig, key: str) -> str:
         text = text.replace(f'id="{old}"', f'id="{new}"')
         text = text.replace(f'href="#{old}"', f'href="#{new}"')
         text = text.replace(f"url(#{old})", f"url(#{new})")
-    text = text.replace("<svg ", '<svg class="plot-svg" role="img" ', 1)
-    return _compact_markers(text).strip() + "\n"
+    # matplotlib's document style, as inherited presentation attributes on the root
+    text = text.replace("<svg ", '<svg class="plot-svg" role="img" stroke-linejoin="round" '
+                        'stroke-linecap="butt" ', 1)
+    return _as_attributes(_compact_markers(text)).strip() + "\n"
+
+
+_STYLE = re.compile(r'\bstyle="([^"]*)"')
+
+
+def _as_attributes(text: str) -> str:
+    """style="fill: #222; stroke-width: 0.6" → fill="#222" stroke-width="0.6".
+
+    Inline in HTML, a style attribute on an SVG element also passes through the page's CSS
+    engine, which knows no SVG properties (WeasyPrint warns for each); presentation
+    attributes mean the same to the SVG renderer and stay out of the page's cascade.
+    """
+    def attributes(match: re.Match) -> str:
+        pairs = (d.split(":", 1) for d in match.group(1).split(";") if ":" in d)
+        return " ".join(f'{k.strip()}="{v.strip()}"' for k, v in pairs)
+
+    return _STYLE.sub(attributes, text)
 
 
 _USE = re.compile(r'^(\s*<use [^>]*?x=")([-0-9.]+)(" y=")([-0-9.]+)(")(?: style="([^"]*)")?(/>)$')

@@ -34,12 +34,8 @@ def render_html(results: dict, plots: dict, *, results_sha256: str) -> str:
 def render_pdf(html: str, *, epoch: int) -> bytes:
     """The same HTML through WeasyPrint, with creation and modification dates at ``epoch``
     (seconds since 1970, UTC) and a file identifier derived from the HTML and the epoch."""
-    import logging
-
     from weasyprint import HTML
 
-    # WeasyPrint reports unsupported CSS on its logger; the report's sheet is ours and known.
-    logging.getLogger("weasyprint").setLevel(logging.ERROR)
     document = HTML(string=html, base_url=str(templates_dir())).render()
     stamp = datetime.fromtimestamp(epoch, tz=timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
     document.metadata.created = stamp

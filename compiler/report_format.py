@@ -79,6 +79,14 @@ def num(x: float, digits: int = DIGITS) -> str:
     return _signed(text)
 
 
+def plain(x: float) -> str:
+    """Up to 4 significant digits without trailing zeros: medians and quartiles of counts."""
+    text = num(x)
+    if "." in text and "×" not in text:
+        text = text.rstrip("0").rstrip(".")
+    return text
+
+
 def p_value(p: float) -> str:
     return "< 0.0001" if p < 0.0001 else f"{p:.4f}"
 

@@ -35,6 +35,10 @@ FIT_STATISTICS = (
 )
 
 
+# Why a fit statistic may be absent when the tier records no reason of its own.
+FIT_GAPS = {"iterations": "the fitting routine does not report an iteration count here"}
+
+
 def analysis_view(a: dict, plot_data: dict | None, notes: Notes) -> dict:
     family = a["family"]
     stat = "t" if family == "gaussian" else "z"
@@ -114,9 +118,9 @@ def _fit_table(a: dict, notes: Notes) -> dict:
         if family not in families:
             continue
         fmt = f.integer if key in ("n_parameters", "df_resid", "iterations") else None
-        rows.append({"label": label,
-                     "cells": [_cell(notes, t.get(key), t.get("reason"), fmt)
-                               for t in a["tiers"]]})
+        cells = [_cell(notes, t.get(key), t.get("reason") or FIT_GAPS.get(key), fmt)
+                 for t in a["tiers"]]
+        rows.append({"label": label, "cells": cells})
     if family != "gaussian":
         rows.append({"label": "converged",
                      "cells": [Cell("yes" if t.get("converged", True) else "no")
@@ -234,7 +238,7 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
             rows.append(_row("mean (SD)", cells, _mean_sd, notes))
             rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
         elif kind == "count":
-            rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+            rows.append(_row("median [Q1, Q3]", cells, _count_median_iqr, notes))
         elif kind == "binary":
             rows.append(_row("n (%) with 1", cells, _count_share, notes))
         else:
@@ -283,10 +287,14 @@ def _mean_sd(c: dict, notes: Notes) -> Cell:
     return Cell(f"{f.num(c['mean'])} ({f.num(c['sd'])})")
 
 
-def _median_iqr(c: dict, notes: Notes) -> Cell:
+def _median_iqr(c: dict, notes: Notes, fmt=f.num) -> Cell:
     if c.get("median") is None:
         return _empty(c, notes)
-    return Cell(f"{f.num(c['median'])} [{f.num(c['q1'])}, {f.num(c['q3'])}]")
+    return Cell(f"{fmt(c['median'])} [{fmt(c['q1'])}, {fmt(c['q3'])}]")
+
+
+def _count_median_iqr(c: dict, notes: Notes) -> Cell:
+    return _median_iqr(c, notes, f.plain)
 
 
 def _count_share(c: dict, notes: Notes) -> Cell:
