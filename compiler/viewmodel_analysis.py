@@ -219,8 +219,9 @@ def _diagnostics(a: dict, plot_data: dict | None, notes: Notes) -> dict | None:
 
 def characteristics_view(a: dict, notes: Notes) -> dict:
     chars = a.get("characteristics")
-    if not chars:
-        return {"id": a["id"], "absent": "The sample's characteristics were not computed.",
+    if not chars or not chars.get("variables"):
+        why = (chars or {}).get("reason") or "not computed"
+        return {"id": a["id"], "absent": f"The sample's characteristics: {why}.",
                 "notes": notes.items}
     groups = chars.get("groups") or []
     header = [f"{g['level']} (n = {f.integer(g['n'])})" for g in groups]

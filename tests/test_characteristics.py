@@ -150,3 +150,13 @@ def test_an_empty_group_gives_no_statistics_and_says_why(tmp_path):
     bound = replace(bound, samples=(narrowed,))
     walking = _variable(summarise(plan, plan.analyses[0], bound), "y")["groups"][1]
     assert walking["n"] == 0 and walking["mean"] is None and walking["reason"]
+
+
+def test_a_streamed_run_without_columns_gives_a_reason_not_numbers(tmp_path):
+    path = tmp_path / "d.csv"
+    path.write_text(DATA)
+    plan = make_plan(DICTIONARY, row_id="pid", analyses=[make_analysis("main", "y", "arm")])
+    bound = bind(plan, read(plan, path))
+    streamed = replace(bound, table=replace(bound.table, columns={}))
+    summary = summarise(plan, plan.analyses[0], streamed)
+    assert summary["variables"] == [] and "streamed" in summary["reason"]

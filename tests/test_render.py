@@ -175,3 +175,10 @@ def test_every_pdf_page_shows_the_digests_and_the_stamp(tiny):
         for needed in (sample.PLAN_SHA[:12], sample.DATA_SHA[:12], sample.RESULTS_SHA[:12],
                        "dusk-sleep", "PRE-REGISTERED"):
             assert needed in text
+
+
+def test_characteristics_left_out_of_a_streamed_run_say_why():
+    document = sample.tiny_results()
+    document["analyses"][0]["characteristics"] = {
+        "variables": [], "reason": "not computed: a streamed run never holds the data's columns"}
+    assert "a streamed run never holds the data&#39;s columns" in _html(document, plots={})
