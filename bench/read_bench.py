@@ -70,7 +70,7 @@ def generate(path: Path, rows: int, seed: int = 7) -> None:
         writer.close()
 
 
-def bench_plan(path: Path):
+def bench_plan(path: Path, with_id: bool = True):
     """A Plan matching the generated file, built directly from the dataclasses."""
     from compiler.plan import (Analysis, Condition, DataSource, Plan, Population, Study, Term,
                                Tier, Variable)
@@ -86,7 +86,7 @@ def bench_plan(path: Path):
         Variable("smoker", "binary"),
         Variable("score", "continuous", max_missing=0.1),
         Variable("outcome", "continuous", min=0, max=300, max_missing=0.1),
-    )
+    )[0 if with_id else 1:]
     exposure = Term("variable", ("arm",))
     adjusted = (Term("variable", ("age",)), Term("log", ("weight",)), Term("variable", ("sbp",)),
                 Term("variable", ("visits",)), Term("variable", ("smoker",)),
@@ -96,12 +96,13 @@ def bench_plan(path: Path):
                                                  Condition("smoker", "equals", 0.0))),)
     analyses = (Analysis("primary", "outcome", "gaussian", "arm", tiers, "full",
                          population="adults-over-30"),)
-    return Plan(1, Study("read-bench"), DataSource(str(path), "csv", row_id="pid"),
+    return Plan(1, Study("read-bench"),
+                DataSource(str(path), "csv", row_id="pid" if with_id else None),
                 variables, populations, analyses, source=str(HERE / "bench.yaml"))
 
 
 def measure(which: str, path: Path) -> dict:
-    """One measurement in this process: wall time and peak RSS above the baseline (bytes)."""
+    """One measurement in this process: wall and CPU time, peak RSS above the baseline."""
     import resource
 
     import numpy as np  # noqa: F401  (part of the baseline in every variant)
@@ -109,29 +110,39 @@ def measure(which: str, path: Path) -> dict:
     import pyarrow.compute as pc
     import pyarrow.csv as pacsv
 
-    if which == "prespec":
-        from compiler import bind, read  # noqa: F401  (imports are baseline, not work)
-    baseline = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+    from compiler import bind, read  # imports are baseline, not work
+
+    variant, _, scope = which.partition("-")
+    used = USED if scope != "noid" else USED[1:]
+    text, numeric = pa.string(), [c for c in used if c in USED[3:]]
+    dictionary = pa.dictionary(pa.int32(), text)
+    typed = {c: pa.float64() for c in numeric} | {"pid": text, "arm": dictionary,
+                                                   "site": dictionary}
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    baseline, cpu = usage.ru_maxrss * 1024, usage.ru_utime + usage.ru_stime
     start = time.perf_counter()
-    if which == "pyarrow":
-        table = pacsv.read_csv(path, convert_options=pacsv.ConvertOptions(include_columns=USED))
+    if variant == "pyarrow":  # pyarrow's own read: its type inference
+        table = pacsv.read_csv(path, convert_options=pacsv.ConvertOptions(include_columns=used))
         used_bytes = table.nbytes
-    elif which == "strings":
-        numeric = USED[3:]
-        types = {c: pa.string() for c in USED}
+    elif variant in ("typed", "strings"):  # the two designs for numeric columns, arrow only
+        types = typed | ({c: text for c in numeric} if variant == "strings" else {})
         table = pacsv.read_csv(path, convert_options=pacsv.ConvertOptions(
-            include_columns=USED, column_types=types, null_values=["", "NA"],
-            strings_can_be_null=True))
-        casts = [pc.cast(table.column(c), pa.float64()) for c in numeric]
+            include_columns=used, column_types={c: types[c] for c in used},
+            null_values=["", "NA"], strings_can_be_null=True))
+        casts = [pc.cast(table.column(c), pa.float64()) for c in numeric] \
+            if variant == "strings" else []
         used_bytes = table.nbytes + sum(a.nbytes for a in casts)
     else:
-        plan = bench_plan(path)
+        plan = bench_plan(path, with_id=scope != "noid")
         bound = bind.bind(plan, read.read(plan, path))
         used_bytes = sum(a.nbytes for a in bound.table.columns.values())
     seconds = time.perf_counter() - start
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    return {"which": which, "seconds": seconds, "peak_above_baseline": peak - baseline,
-            "used_bytes": used_bytes}
+    usage = resource.getrusage(resource.RUSAGE_SELF)
+    result = {"which": which, "seconds": seconds, "cpu": usage.ru_utime + usage.ru_stime - cpu,
+              "peak_above_baseline": usage.ru_maxrss * 1024 - baseline, "used_bytes": used_bytes}
+    if variant == "prespec" and scope != "noid":  # the identifier's str objects, too
+        result["str_bytes"] = sum(map(sys.getsizeof, bound.table.columns["pid"]))
+    return result
 
 
 def run_one(which: str, path: Path) -> dict:
@@ -149,7 +160,8 @@ def main() -> None:
     parser.add_argument("--keep", action="store_true", help="keep the generated data file")
     parser.add_argument("--measure", help=argparse.SUPPRESS)
     parser.add_argument("--path", help=argparse.SUPPRESS)
-    parser.add_argument("--variants", default="pyarrow,prespec,strings")
+    parser.add_argument("--variants",
+                        default="pyarrow,prespec,typed,strings,pyarrow-noid,prespec-noid")
     args = parser.parse_args()
     if args.measure:
         print(json.dumps(measure(args.measure, Path(args.path))))
@@ -166,24 +178,33 @@ def main() -> None:
             for which in variants:
                 result = run_one(which, DATA)
                 runs[which].append(result)
-                print(f"  run {k + 1} {which:8s} {result['seconds']:6.2f} s  "
+                print(f"  run {k + 1} {which:8s} {result['seconds']:6.2f} s wall "
+                      f"{result['cpu']:6.2f} s cpu  "
                       f"peak +{result['peak_above_baseline'] / 1e9:.2f} GB", flush=True)
     finally:
         if not args.keep:
             DATA.unlink(missing_ok=True)
     summary = {v: statistics.median(r["seconds"] for r in rs) for v, rs in runs.items()}
-    print("median seconds:", ", ".join(f"{v} {s:.2f}" for v, s in summary.items()))
-    if "pyarrow" in summary and "prespec" in summary:
-        arrow_bytes = runs["pyarrow"][0]["used_bytes"]
-        table_bytes = runs["prespec"][0]["used_bytes"]
-        peak = statistics.median(r["peak_above_baseline"] for r in runs["prespec"])
-        arrow_peak = statistics.median(r["peak_above_baseline"] for r in runs["pyarrow"])
-        print(f"time ratio prespec / pyarrow: {summary['prespec'] / summary['pyarrow']:.2f} "
-              "(target ≤ 1.3)")
-        print(f"used columns in memory: pyarrow table {arrow_bytes / 1e9:.2f} GB, "
-              f"prespec numpy columns {table_bytes / 1e9:.2f} GB (object arrays: pointers only)")
-        print(f"peak above baseline: pyarrow {arrow_peak / 1e9:.2f} GB, prespec {peak / 1e9:.2f} GB"
-              f" = {peak / arrow_bytes:.2f}× the pyarrow table (target ≤ 2×)")
+    cpu = {v: statistics.median(r["cpu"] for r in rs) for v, rs in runs.items()}
+    print("median wall seconds:", ", ".join(f"{v} {s:.2f}" for v, s in summary.items()))
+    print("median cpu seconds:", ", ".join(f"{v} {s:.2f}" for v, s in cpu.items()))
+    for scope in ("", "-noid"):
+        arrow, ours = f"pyarrow{scope}", f"prespec{scope}"
+        if arrow not in summary or ours not in summary:
+            continue
+        label = "with the identifier column" if not scope else "without the identifier column"
+        arrow_bytes = runs[arrow][0]["used_bytes"]
+        table_bytes = runs[ours][0]["used_bytes"] + runs[ours][0].get("str_bytes", 0)
+        peak = statistics.median(r["peak_above_baseline"] for r in runs[ours])
+        arrow_peak = statistics.median(r["peak_above_baseline"] for r in runs[arrow])
+        print(f"{label}:")
+        print(f"  time ratio prespec / pyarrow: wall {summary[ours] / summary[arrow]:.2f}, "
+              f"cpu {cpu[ours] / cpu[arrow]:.2f} (target ≤ 1.3)")
+        print(f"  used columns in memory: pyarrow table {arrow_bytes / 1e9:.2f} GB, "
+              f"prespec Table {table_bytes / 1e9:.2f} GB (numpy arrays and str objects)")
+        print(f"  peak above baseline: pyarrow {arrow_peak / 1e9:.2f} GB, prespec "
+              f"{peak / 1e9:.2f} GB = {peak / arrow_bytes:.2f}× the pyarrow table, "
+              f"{peak / table_bytes:.2f}× prespec's Table (target ≤ 2×)")
 
 
 if __name__ == "__main__":

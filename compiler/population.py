@@ -95,7 +95,12 @@ def row_ids(plan: Plan, table: Table, rows: np.ndarray) -> np.ndarray:
     """The rows' row_id values, or their 1-based data row numbers as text."""
     if plan.data.row_id and plan.data.row_id in table.columns:
         return table.columns[plan.data.row_id][rows]
-    return (rows + 1).astype(str).astype(object)
+    out = np.empty(len(rows), dtype=object)
+    step = 1 << 20  # in slices, so the Python ints in between stay few
+    for start in range(0, len(rows), step):
+        numbers = (rows[start:start + step] + 1).tolist()
+        out[start:start + len(numbers)] = np.fromiter(map(str, numbers), object, len(numbers))
+    return out
 
 
 def _text(value) -> str:

@@ -67,7 +67,7 @@ def test_every_condition_must_hold(tmp_path):
     assert list(sample.row_ids) == ["p2", "p6"]
     # each step counts only the rows still in: p1 and p3 fail age, then p4 and p5 fail arm
     assert [s.excluded for s in sample.flow.by_condition] == [2, 2]
-    assert [s.reason for s in sample.flow.by_condition] == ["age ≥ 18.0", "arm = walking"]
+    assert [s.reason for s in sample.flow.by_condition] == ["age ≥ 18", "arm = walking"]
 
 
 def test_no_population_keeps_every_row(tmp_path):

@@ -122,7 +122,7 @@ def test_an_empty_sample_names_the_analysis_and_its_flow(tmp_path):
         bind(plan, read(plan, path))
     problem = next(p for p in caught.value.problems if p.code == "empty-sample")
     assert problem.details["analysis"] == "primary"
-    assert "age ≥ 18.0: −2" in problem.message and "missing latency_w8: −1" in problem.message
+    assert "age ≥ 18: −2" in problem.message and "missing latency_w8: −1" in problem.message
 
 
 def test_the_demo_plan_binds_its_demo_data_end_to_end(tmp_path):
