@@ -23,18 +23,18 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from .bound import EXAMPLES, Table, Tally
-from .plan import Plan, Variable
+from .plan import Plan
 from .problems import Exit, Problem, Stop
 
 FORMATS = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", ".pq": "parquet",
            ".xpt": "xpt", ".dta": "dta"}
 BLOCK = 4 << 20  # bytes pyarrow parses per block; also the hashing step
-# what pyarrow's float parser accepts, so that text found on the slow path matches the fast path
 HINTS = {  # a library's message → what the user can do about it
     "invalid UTF8": "text columns must be UTF-8: save the file with UTF-8 encoding",
     "not an XPORT file": "only SAS transport version 5 files are read (names of up to 8 "
                          "characters); write the file as version 5",
 }
+# what pyarrow's float parser accepts, so that text found on the slow path matches the fast path
 NUMBER = r"^[+-]?((\d+\.?\d*|\.\d+)([eE][+-]?\d+)?|(?i:inf|infinity|nan))$"
 
 
@@ -371,6 +371,7 @@ def _as_text(data: pa.ChunkedArray) -> pa.ChunkedArray:
     if pa.types.is_string(kind) or pa.types.is_large_string(kind) or pa.types.is_null(kind):
         return data if not pa.types.is_null(kind) else data.cast(pa.string())
     if pa.types.is_floating(kind):
+        data = pc.if_else(pc.is_finite(data), data, pa.scalar(None, kind))  # NaN is missing
         values = data.to_numpy()
         whole = values[np.isfinite(values)]
         if np.all(whole == np.round(whole)) and np.all(np.abs(whole) < 2**53):

@@ -180,6 +180,24 @@ def test_text_in_a_numeric_parquet_column_is_kept_for_the_contract(tmp_path):
     assert table.unparsed["age"].values == ("old",) and table.columns["age"][0] == 40.5
 
 
+def test_numbers_stored_in_a_text_variable_read_as_their_shortest_form(tmp_path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    frame = pa.table({"pid": [7, 12], "arm": [1.0, None], "age": [40.0, 50.0],
+                      "smoker": [0, 1], "visits": [1, 2], "sbp": [120.0, 130.0]})
+    pq.write_table(frame, tmp_path / "d.parquet")
+    table = read(PLAN, tmp_path / "d.parquet")
+    assert list(table.columns["pid"]) == ["7", "12"]
+    assert list(table.columns["arm"]) == ["1", None]
+
+
+def test_data_format_overrides_the_extension(tmp_path):
+    plan = make_plan(DICTIONARY, data_format="tsv")
+    table = read(plan, _file(tmp_path, "export.txt", ROWS.replace(",", "\t")))
+    assert table.format == "tsv" and table.rows_read == 4
+
+
 # --- the same data in every format ----------------------------------------------------------
 
 SHORT = make_plan(DICTIONARY, row_id="pid", analyses=[
