@@ -45,11 +45,16 @@ def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
     """(BoundData, AnalysisFits) of a streamed run; Stop (exit 3) as read and bind would."""
     from .stream_fit import fit_streamed
 
+    import scipy.linalg  # noqa: F401  (loaded before the thread limit, so that it covers it)
+
+    from .qr import one_blas_thread
+
     path = Path(data_path)
-    bound, kept, firsts = _bind_pass(plan, path, fmt, progress)
-    fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt, kept[a.id]),
-                              progress, firsts.get(a.id))
-                 for a in plan.analyses)
+    with one_blas_thread(path.stat().st_size):  # every row is at least a byte
+        bound, kept, firsts = _bind_pass(plan, path, fmt, progress)
+        fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt, kept[a.id]),
+                                  progress, firsts.get(a.id))
+                     for a in plan.analyses)
     if progress is not None:
         progress.done()
     return bound, fits

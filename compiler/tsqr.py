@@ -18,6 +18,8 @@ from typing import Iterable
 
 import numpy as np
 
+PIECE_ROWS = 8192  # as compiler/qr.py's CHUNK_ROWS: a piece of a batch fits in cache
+
 
 def tsqr_map(block: np.ndarray) -> np.ndarray:
     """The R factor of one batch of rows: min(rows, p) × p, upper trapezoidal.
@@ -63,7 +65,9 @@ class TsqrAccumulator:
         if block.shape[1] != self.width:
             raise ValueError(f"batch has {block.shape[1]} columns, expected {self.width}")
         self.rows += block.shape[0]
-        self.add_partial(tsqr_map(block))
+        # a large batch in cache-sized pieces: Householder QR is memory-bound on tall blocks
+        for start in range(0, max(block.shape[0], 1), PIECE_ROWS):
+            self.add_partial(tsqr_map(block[start:start + PIECE_ROWS]))
 
     def add_partial(self, partial: np.ndarray) -> None:
         carry = partial
