@@ -26,11 +26,6 @@ def study(folder: Path) -> tuple[Path, Path]:
     folder.mkdir(parents=True, exist_ok=True)
     plan = folder / "dusk-sleep.yaml"
     shutil.copyfile(DEMO_PLAN, plan)
-    # The demo's per-protocol rule (sessions ≥ 2) leaves no row of guidance `none`, whose
-    # sessions are 0, so `awakenings` cannot be fitted; the bundle tests need a plan that runs.
-    text = plan.read_text(encoding="utf-8")
-    plan.write_text(text.replace("population: per-protocol", "population: all-randomised"),
-                    encoding="utf-8")
     data = folder / "dusk-sleep.csv"
     subprocess.run([sys.executable, str(MAKE_DATA), str(data), "--rows", str(ROWS)],
                    check=True, capture_output=True)
