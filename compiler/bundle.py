@@ -69,7 +69,7 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
         data_path = data_path_for(plan, data)
         note = f"{data_path.name} with {scramble} scrambled, seed {seed}"
     else:
-        count = rows or plan.data.expected_rows or DEFAULT_REHEARSAL_ROWS
+        count = rows if rows is not None else (plan.data.expected_rows or DEFAULT_REHEARSAL_ROWS)
         settings = {"source": "synthetic", "seed": seed, "rows": count, "effect": effect,
                     "scramble": None}
         data_path = None
