@@ -31,8 +31,6 @@ EMPTY = "no analysed rows in this group"
 
 def summarise(plan: Plan, analysis: Analysis, bound: BoundData) -> dict:
     """The characteristics of ``analysis``' sample (layout: see the module docstring)."""
-    if isinstance(analysis, BoundData):  # the brief names (plan, bound, analysis); accept both
-        analysis, bound = bound, analysis
     table = bound.table
     exposure = plan.variable(analysis.exposure)
     grouped = exposure.kind in ("categorical", "binary")
