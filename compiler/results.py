@@ -223,4 +223,5 @@ def _verdict(v) -> dict:
 def _assumption(o) -> dict:
     return {"id": o.id, "analysis": o.analysis, "check": o.check,
             "statistic": number(o.statistic), "p_value": number(o.p_value),
-            "triggered": bool(o.triggered), "covariance": o.covariance, "reason": o.reason}
+            "triggered": bool(o.triggered), "covariance": o.covariance, "reason": o.reason,
+            "determined": bool(o.determined), "tier": o.tier}
