@@ -22,7 +22,8 @@ from . import read
 from .bound import Table, Tally
 from .plan import Plan
 
-BATCH_BYTES = 16 << 20  # CSV bytes parsed per batch; PRESPEC_STREAM_BATCH_BYTES overrides
+BATCH_BYTES = 1 << 20  # CSV bytes pyarrow parses per block; PRESPEC_STREAM_BATCH_BYTES overrides
+GATHER_ROWS = 65_536  # rows per batch handed on; PRESPEC_STREAM_BATCH_ROWS overrides
 PARQUET_ROWS = 131_072
 
 
@@ -76,7 +77,7 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
                     include_columns=include, column_types=types or {include[0]: text},
                     null_values=list(plan.data.missing), strings_can_be_null=True))
             offset = 0
-            for batch in reader:
+            for batch in _gathered(reader):
                 yield offset, _table(plan, facts, batch, offset, fmt)
                 offset += batch.num_rows
         except pa.ArrowInvalid as error:
@@ -91,6 +92,33 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
             facts.size_bytes = source.size
         else:
             facts.size_bytes = path.stat().st_size
+
+
+def _gathered(reader) -> Iterator[pa.RecordBatch]:
+    """The reader's small blocks joined into batches of about GATHER_ROWS rows: pyarrow reads
+    several blocks ahead, so its memory grows with the block size, while each batch we
+    handle costs a fixed overhead — small blocks, gathered, keep both down."""
+    held, rows, seen = [], 0, False
+    for batch in reader:
+        seen = True
+        held.append(batch)
+        rows += batch.num_rows
+        if rows >= _gather_rows():
+            yield _joined(held)
+            held, rows = [], 0
+    if held:
+        yield _joined(held)
+    elif not seen:  # a header and no rows: one empty batch, so that the pass sees the columns
+        yield pa.RecordBatch.from_pylist([], schema=reader.schema)
+
+
+def _joined(batches: list) -> pa.RecordBatch:
+    return batches[0] if len(batches) == 1 else \
+        pa.Table.from_batches(batches).combine_chunks().to_batches()[0]
+
+
+def _gather_rows() -> int:
+    return int(os.environ.get("PRESPEC_STREAM_BATCH_ROWS") or GATHER_ROWS)
 
 
 def _batch_bytes() -> int:

@@ -108,7 +108,8 @@ def numbers_agree(a, b, where="", skip=("fitted", "residuals")):
 
 @pytest.fixture
 def small_batches(monkeypatch):
-    monkeypatch.setattr(batches, "BATCH_BYTES", 8192)  # about 25 batches of the fixture
+    monkeypatch.setattr(batches, "BATCH_BYTES", 8192)  # pyarrow's smallest useful block
+    monkeypatch.setattr(batches, "GATHER_ROWS", 100)  # about 30 batches of the fixture
 
 
 def test_streamed_fits_equal_in_memory_fits_in_every_family(tmp_path, small_batches):
@@ -223,6 +224,7 @@ def test_prespec_run_stream_writes_the_in_memory_results(tmp_path):
         done = subprocess.run([prespec, "run", str(tmp_path / "plan.yaml"), "--unlocked",
                                "--out", str(out), *extra], capture_output=True, text=True,
                               env={**os.environ, "PRESPEC_STREAM_BATCH_BYTES": "8192",
+                                   "PRESPEC_STREAM_BATCH_ROWS": "100",
                                    "CI": "1"})
         assert done.returncode == 0, done.stderr
         documents.append(json.loads((out / "results.json").read_text()))
