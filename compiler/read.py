@@ -29,6 +29,7 @@ from .problems import Exit, Problem, Stop
 FORMATS = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", ".pq": "parquet",
            ".xpt": "xpt", ".dta": "dta"}
 BLOCK = 4 << 20  # bytes pyarrow parses per block; also the hashing step
+GROUP = 16  # parsed blocks converted to numpy at a time (see _released)
 HINTS = {  # a library's message → what the user can do about it
     "invalid UTF8": "text columns must be UTF-8: save the file with UTF-8 encoding",
     "not an XPORT file": "only SAS transport version 5 files are read (names of up to 8 "
@@ -64,16 +65,16 @@ def read(plan: Plan, path: str | Path) -> Table:
     for variable in plan.variables:
         if variable.name not in arrays:
             continue
-        data = arrays.pop(variable.name)  # release each arrow column once converted
         if variable.is_numeric:
-            columns[variable.name], tally = numbers(data, missing)
+            columns[variable.name], tally = _released(arrays, variable.name, missing, numbers)
             if tally.count:
                 unparsed[variable.name] = tally
         elif variable.kind == "categorical":
-            codes[variable.name] = coded(data, missing)
+            codes[variable.name] = coded(arrays.pop(variable.name), missing)
             columns[variable.name] = _lookup(*codes[variable.name])
         else:
-            columns[variable.name] = texts(data, missing)
+            columns[variable.name], _ = _released(
+                arrays, variable.name, missing, lambda d, m: (texts(d, m), Tally()))
     unused = tuple(name for name in header if name not in declared and name not in columns)
     return Table(path=str(path), format=fmt, sha256=digest, size_bytes=size, rows_read=rows,
                  columns=columns, unused_columns=unused, unparsed=unparsed, codes=codes)
@@ -170,7 +171,7 @@ def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool)
         # include_columns=[] would mean every column; read one as text to count the rows
         include = list(present) or header[:1]
         table = pacsv.read_csv(
-            source,
+            source, memory_pool=_parse_pool(),
             read_options=pacsv.ReadOptions(use_threads=True, block_size=BLOCK),
             parse_options=pacsv.ParseOptions(delimiter=delimiter),
             convert_options=pacsv.ConvertOptions(
@@ -179,6 +180,20 @@ def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool)
         digest = source.hexdigest()
     arrays = {name: table.column(name) for name in present}
     return header, arrays, table.num_rows, digest, source.size
+
+
+def _parse_pool() -> pa.MemoryPool:
+    """The pool the parse allocates from: jemalloc purging at once where the build has it.
+
+    The parsed blocks are freed column by column as they become numpy arrays; arrow's default
+    allocator keeps freed pages for reuse, which would hold the file's columns twice at the peak.
+    """
+    try:
+        pool = pa.jemalloc_memory_pool()
+        pa.jemalloc_set_decay_ms(0)
+        return pool
+    except NotImplementedError:
+        return pa.default_memory_pool()
 
 
 def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
@@ -292,6 +307,27 @@ def _arrow_of(series) -> pa.ChunkedArray:
 
 
 # --- arrow columns to the Table's numpy arrays ---------------------------------------------
+
+
+def _released(arrays: dict, name: str, missing, convert) -> tuple[np.ndarray, Tally]:
+    """``convert`` over a column a group of chunks at a time, each group's arrow memory freed
+    once converted: the column is held twice only a group at a time, not whole."""
+    column = arrays.pop(name)
+    kind, rows, chunks = column.type, len(column), column.chunks[::-1]
+    del column  # the chunks list now holds the only references
+    out: np.ndarray | None = None
+    found, at = Tally(), 0
+    while chunks or out is None:
+        group = pa.chunked_array([chunks.pop() for _ in range(min(GROUP, len(chunks)))], kind)
+        values, tally = convert(group, missing)
+        del group
+        if out is None:
+            out = values if len(values) == rows else np.empty(rows, values.dtype)
+        if out is not values:
+            out[at:at + len(values)] = values
+        found = found.merge(Tally(tally.count, tuple(r + at for r in tally.rows), tally.values))
+        at += len(values)
+    return out, found
 
 
 def numbers(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None
