@@ -42,20 +42,25 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
     sample = bound.sample(analysis.id)
     builder = _Builder(plan, bound.table.columns, sample.rows, sample.row_ids, analysis.id)
 
+    # The matrix is allocated once at its final width and filled a column at a time, so the
+    # peak holds the design and one column, never a list of every column besides the matrix.
+    added = tier_terms(analysis)
+    width = 1 + sum(len(term_labels(plan, term)) for terms in added for term in terms)
+    x = np.empty((len(sample.rows), width), dtype=np.float64)  # C order: row chunks for the QR
+    x[:, 0] = 1.0
     labels: list[str] = [INTERCEPT]
     column_term: list[str] = [INTERCEPT]
-    columns: list[np.ndarray] = [np.ones(len(sample.rows))]
     widths: list[int] = []
     exposure_columns: tuple[int, ...] = ()
-    for index, terms in enumerate(tier_terms(analysis)):
+    for index, terms in enumerate(added):
         for term in terms:
             for label, values in builder.term_columns(term):
+                x[:, len(labels)] = values
                 labels.append(label)
                 column_term.append(term.label)
-                columns.append(values)
-        widths.append(len(columns))
+        widths.append(len(labels))
         if index == 0:
-            exposure_columns = tuple(range(1, len(columns)))
+            exposure_columns = tuple(range(1, len(labels)))
 
     y = builder.outcome(plan.variable(analysis.outcome))
     offset = None
@@ -66,10 +71,6 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
     if analysis.covariance.kind == "cluster" and analysis.covariance.cluster:
         cluster = cluster_codes(builder.raw(analysis.covariance.cluster))
     builder.stop_if_problems()
-
-    x = np.empty((len(sample.rows), len(columns)), dtype=np.float64)  # C order: row chunks
-    for j, values in enumerate(columns):
-        x[:, j] = values
     return Design(
         analysis=analysis.id, x=x, y=y, offset=offset, labels=tuple(labels),
         column_term=tuple(column_term), tier_names=tuple(t.name for t in analysis.tiers),
@@ -140,7 +141,11 @@ class _Builder:
 
     def raw(self, name: str) -> np.ndarray:
         if name not in self._cache:
-            self._cache[name] = self.columns[name][self.rows]
+            column = self.columns[name]
+            # rows are ascending, distinct positions: as many as the column has means all of
+            # them, and the column itself serves without a copy
+            whole = len(self.rows) == len(column)
+            self._cache[name] = column if whole else column[self.rows]
         return self._cache[name]
 
     def numeric(self, name: str) -> np.ndarray:
