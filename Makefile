@@ -20,6 +20,7 @@ $(STAMP): pyproject.toml | system-libs
 	touch $(STAMP)
 
 demo: $(STAMP)
+	rm -rf out/rehearsal out/dusk-sleep  # bundles are never overwritten: clear the last demo
 	$(BIN)/python plans/make_demo_data.py plans/data/dusk-sleep.csv
 	$(BIN)/prespec check --explain plans/dusk-sleep.yaml
 	$(BIN)/prespec rehearse plans/dusk-sleep.yaml --out out/rehearsal --seed 1
