@@ -140,8 +140,6 @@ def measure(which: str, path: Path) -> dict:
     usage = resource.getrusage(resource.RUSAGE_SELF)
     result = {"which": which, "seconds": seconds, "cpu": usage.ru_utime + usage.ru_stime - cpu,
               "peak_above_baseline": usage.ru_maxrss * 1024 - baseline, "used_bytes": used_bytes}
-    if variant == "prespec" and scope != "noid":  # the identifier's str objects, too
-        result["str_bytes"] = sum(map(sys.getsizeof, bound.table.columns["pid"]))
     return result
 
 
@@ -194,14 +192,14 @@ def main() -> None:
             continue
         label = "with the identifier column" if not scope else "without the identifier column"
         arrow_bytes = runs[arrow][0]["used_bytes"]
-        table_bytes = runs[ours][0]["used_bytes"] + runs[ours][0].get("str_bytes", 0)
+        table_bytes = runs[ours][0]["used_bytes"]
         peak = statistics.median(r["peak_above_baseline"] for r in runs[ours])
         arrow_peak = statistics.median(r["peak_above_baseline"] for r in runs[arrow])
         print(f"{label}:")
         print(f"  time ratio prespec / pyarrow: wall {summary[ours] / summary[arrow]:.2f}, "
               f"cpu {cpu[ours] / cpu[arrow]:.2f} (target ≤ 1.3)")
         print(f"  used columns in memory: pyarrow table {arrow_bytes / 1e9:.2f} GB, "
-              f"prespec Table {table_bytes / 1e9:.2f} GB (numpy arrays and str objects)")
+              f"prespec Table {table_bytes / 1e9:.2f} GB (numpy arrays, arrow identifiers)")
         print(f"  peak above baseline: pyarrow {arrow_peak / 1e9:.2f} GB, prespec "
               f"{peak / 1e9:.2f} GB = {peak / arrow_bytes:.2f}× the pyarrow table, "
               f"{peak / table_bytes:.2f}× prespec's Table (target ≤ 2×)")

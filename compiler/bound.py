@@ -29,13 +29,114 @@ class Tally:
                      (self.values + later.values)[:EXAMPLES])
 
 
+class TextColumn:
+    """A text column kept as arrow strings (None = missing), read like a 1-d object array.
+
+    ``column[i]`` is a str or None; an index array, a boolean mask or a slice gives a
+    TextColumn of those rows; iteration and ``np.asarray`` give Python values (the whole
+    column as Python objects: only for small columns). Checks over millions of rows use
+    ``missing`` and ``data`` (pyarrow.compute) instead.
+    """
+
+    dtype = np.dtype(object)
+    ndim = 1
+
+    def __init__(self, data):
+        import pyarrow as pa
+
+        self.data = data if isinstance(data, pa.ChunkedArray) else pa.chunked_array([data])
+
+    def __len__(self) -> int:
+        return len(self.data)
+
+    @property
+    def shape(self) -> tuple[int]:
+        return (len(self.data),)
+
+    @property
+    def nbytes(self) -> int:
+        return self.data.nbytes
+
+    def __getitem__(self, key):
+        if isinstance(key, (int, np.integer)):
+            return self.data[int(key)].as_py()
+        import pyarrow as pa
+
+        if isinstance(key, slice):
+            key = np.arange(len(self.data))[key]
+        key = np.asarray(key)
+        if key.dtype == bool:
+            return TextColumn(self.data.filter(pa.array(key)))
+        return TextColumn(self.data.take(pa.array(key.astype(np.int64, copy=False))))
+
+    def __iter__(self):
+        return iter(self.data.to_pylist())
+
+    def __array__(self, dtype=None, copy=None):
+        return np.asarray(self.data.to_numpy(zero_copy_only=False), dtype=dtype or object)
+
+    def __repr__(self) -> str:
+        return f"TextColumn({len(self)} rows)"
+
+    def missing(self) -> np.ndarray:
+        """A boolean mask of the rows with no value."""
+        return np.asarray(self.data.is_null().to_numpy(zero_copy_only=False), dtype=bool)
+
+    def categories(self) -> tuple[np.ndarray, tuple[str, ...]]:
+        """(int32 codes, distinct values), code -1 for missing."""
+        import pyarrow as pa
+        import pyarrow.compute as pc
+
+        encoded = pc.dictionary_encode(self.data).unify_dictionaries()
+        if not encoded.num_chunks:
+            return np.empty(0, np.int32), ()
+        distinct = tuple(encoded.chunk(0).dictionary.to_pylist())
+        indices = pa.chunked_array([c.indices for c in encoded.chunks], pa.int32())
+        return pc.fill_null(indices, -1).to_numpy().astype(np.int32), distinct
+
+
+class RowLabels:
+    """The labels of a sample's rows, made only for the rows a report names.
+
+    ``labels[i]`` is the row_id value of the sample's i-th row (``ids`` given), or its 1-based
+    data row number as str; an index array, mask or slice gives the RowLabels of those rows;
+    iteration and ``np.asarray`` give every label (small samples only).
+    """
+
+    def __init__(self, rows: np.ndarray, ids=None):
+        self.rows = rows  # positions into the Table
+        self.ids = ids  # the whole row_id column, or None for row numbers
+
+    def __len__(self) -> int:
+        return len(self.rows)
+
+    def __getitem__(self, key):
+        if isinstance(key, (int, np.integer)):
+            row = int(self.rows[key])
+            return self.ids[row] if self.ids is not None else str(row + 1)
+        return RowLabels(self.rows[key], self.ids)
+
+    def __iter__(self):
+        return (self[i] for i in range(len(self.rows)))
+
+    def __array__(self, dtype=None, copy=None):
+        out = np.empty(len(self.rows), dtype=object)
+        out[:] = list(self)
+        return out if dtype is None else out.astype(dtype)
+
+    def __repr__(self) -> str:
+        return f"RowLabels({len(self)} rows)"
+
+
 @dataclass(frozen=True)
 class Table:
     """The declared columns as read, with the digest of the file bytes.
 
     ``columns`` maps column name to a numpy array: float64 (NaN = missing) for continuous,
-    count and binary variables; object arrays of str (None = missing) for categorical and
-    identifier variables. Row order is file order.
+    count and binary variables; object arrays of str (None = missing) for categorical
+    variables. An identifier column is a :class:`TextColumn` as read from a file (millions of
+    ids cost no Python objects) or an object array of str in a table built in code; both index,
+    iterate and convert with ``np.asarray`` alike. Row order is file order.
     """
 
     path: str
@@ -55,6 +156,8 @@ class Table:
         """A text column as (codes, distinct values), code -1 for missing."""
         if name in self.codes:
             return self.codes[name]
+        if isinstance(self.columns[name], TextColumn):
+            return self.columns[name].categories()
         import pandas as pd
 
         codes, uniques = pd.factorize(self.columns[name], use_na_sentinel=True)
@@ -86,7 +189,9 @@ class Sample:
 
     analysis: str
     rows: np.ndarray  # int64 positions into the Table, ascending
-    row_ids: np.ndarray  # object array: the row_id values, or 1-based data row numbers as str
+    # the rows' labels by position in the sample: their row_id values, or 1-based data row
+    # numbers as str; a RowLabels (made only for the rows asked for) or an array
+    row_ids: RowLabels | np.ndarray
     flow: SampleFlow
 
 

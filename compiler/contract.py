@@ -19,7 +19,7 @@ import difflib
 
 import numpy as np
 
-from .bound import EXAMPLES, Sample, Table, Tally
+from .bound import EXAMPLES, Sample, Table, Tally, TextColumn
 from .plan import Analysis, Plan, Variable
 from .problems import Problem
 
@@ -66,7 +66,10 @@ def not_positive(values: np.ndarray, offset: int = 0) -> Tally:
 
 
 def missing(values: np.ndarray, offset: int = 0) -> Tally:
-    """Missing values: NaN in a numeric array, code -1 in codes, None in an object array."""
+    """Missing values: NaN in a numeric array, code -1 in codes, None in an object array or a
+    TextColumn."""
+    if isinstance(values, TextColumn):
+        return tally(values.missing(), values, offset)
     if values.dtype == object:
         return tally(np.equal(values, None), values, offset)
     if np.issubdtype(values.dtype, np.integer):
@@ -89,13 +92,18 @@ def outside_levels(codes: np.ndarray, distinct: tuple[str, ...], levels: tuple[s
     return tally(np.isin(codes, foreign), values[codes], offset)
 
 
-def identifier_faults(ids: np.ndarray) -> tuple[Tally, Tally]:
+def identifier_faults(ids: np.ndarray | TextColumn) -> tuple[Tally, Tally]:
     """Rows whose identifier another row also holds, and rows with no identifier.
+
+    A TextColumn is checked on its arrow strings (see ``_text_identifier_faults``); an object
+    array as follows.
 
     Python's cached string hashes, sorted, find repeat candidates in one pass over the column;
     candidates are then compared exactly, so a hash collision never reports a false repeat.
     Needs the whole column: a streaming reader must keep the hashes of earlier batches.
     """
+    if isinstance(ids, TextColumn):
+        return _text_identifier_faults(ids)
     hashes = np.fromiter(map(hash, ids), dtype=np.int64, count=len(ids))
     maybe_none = np.flatnonzero(hashes == hash(None))
     absent = np.array([r for r in maybe_none if ids[r] is None], dtype=np.int64)
@@ -116,6 +124,60 @@ def identifier_faults(ids: np.ndarray) -> tuple[Tally, Tally]:
     shared = sorted(r for rows in rows_of.values() if len(rows) > 1 for r in rows)
     return Tally(len(shared), tuple(shared[:EXAMPLES]),
                  tuple(ids[r] for r in shared[:EXAMPLES])), missing_ids
+
+
+def _text_identifier_faults(ids: TextColumn) -> tuple[Tally, Tally]:
+    """identifier_faults over arrow strings, with no Python object per row.
+
+    Identifiers in strictly ascending order (files are often sorted by id) are unique after
+    one vectorised comparison of neighbours. Otherwise a 64-bit hash of each id's bytes is
+    sorted to find repeat candidates, which are then compared exactly.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    absent = ids.missing()
+    missing_ids = tally(absent, ids) if ids.data.null_count else Tally()
+    present = ids.data.drop_null() if ids.data.null_count else ids.data
+    if len(present) < 2 or pc.all(pc.less(present[:-1], present[1:])).as_py():
+        return Tally(), missing_ids
+    whole = ids.data.combine_chunks() if ids.data.num_chunks else pa.array([], pa.string())
+    hashes = _hashes(whole)
+    del whole
+    hashes[absent] = 0  # never compared: missing rows are dropped from candidates below
+    ordered = np.sort(hashes[~absent])
+    collided = np.unique(ordered[1:][ordered[1:] == ordered[:-1]])
+    del ordered
+    if not len(collided):
+        return Tally(), missing_ids
+    candidates = np.flatnonzero(np.isin(hashes, collided) & ~absent)
+    rows_of: dict[str, list[int]] = {}
+    for row, value in zip(candidates.tolist(), ids[candidates]):
+        rows_of.setdefault(value, []).append(row)
+    shared = sorted(r for rows in rows_of.values() if len(rows) > 1 for r in rows)
+    return Tally(len(shared), tuple(shared[:EXAMPLES]),
+                 tuple(ids[r] for r in shared[:EXAMPLES])), missing_ids
+
+
+def _hashes(text) -> np.ndarray:
+    """FNV-1a over each string's UTF-8 bytes, one vectorised step per byte position."""
+    import pyarrow as pa
+
+    if not pa.types.is_string(text.type):
+        text = text.cast(pa.large_string())
+    width = np.int32 if pa.types.is_string(text.type) else np.int64
+    _, offsets, data = text.buffers()
+    offsets = np.frombuffer(offsets, width, len(text) + 1, text.offset * np.dtype(width).itemsize)
+    raw = np.frombuffer(data, np.uint8) if data is not None else np.zeros(1, np.uint8)
+    start, length = offsets[:-1].astype(np.int64), np.diff(offsets)
+    hashes = np.full(len(text), 0xCBF29CE484222325, np.uint64)
+    prime = np.uint64(0x100000001B3)
+    same = len(length) and length.min() == length.max()
+    for k in range(int(length.max()) if len(length) else 0):
+        live = slice(None) if same else np.flatnonzero(length > k)
+        at = start[live] + k
+        hashes[live] = (hashes[live] ^ raw[at]) * prime
+    return (hashes ^ length.astype(np.uint64)).view(np.int64)
 
 
 def _plain(value):

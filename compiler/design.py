@@ -75,7 +75,7 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
         analysis=analysis.id, x=x, y=y, offset=offset, labels=tuple(labels),
         column_term=tuple(column_term), tier_names=tuple(t.name for t in analysis.tiers),
         tier_width=tuple(widths), exposure_columns=exposure_columns, cluster=cluster,
-        row_ids=np.asarray(sample.row_ids, dtype=object),
+        row_ids=sample.row_ids,
     )
 
 
@@ -129,12 +129,12 @@ def cluster_codes(values: np.ndarray) -> np.ndarray:
 class _Builder:
     """Reads the sample's values of each variable and turns terms into columns."""
 
-    def __init__(self, plan: Plan, columns: dict, rows: np.ndarray, row_ids: np.ndarray,
+    def __init__(self, plan: Plan, columns: dict, rows: np.ndarray, row_ids,
                  analysis_id: str):
         self.plan = plan
         self.columns = columns
         self.rows = rows
-        self.row_ids = np.asarray(row_ids, dtype=object)
+        self.row_ids = row_ids
         self.analysis_id = analysis_id
         self.problems: list[Problem] = []
         self._cache: dict[str, np.ndarray] = {}

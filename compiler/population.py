@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .bound import FlowStep, Sample, SampleFlow, Table
+from .bound import FlowStep, RowLabels, Sample, SampleFlow, Table, TextColumn
 from .plan import Analysis, Condition, Plan, Variable
 
 
@@ -32,7 +32,8 @@ def missing_mask(variable: Variable, table: Table) -> np.ndarray:
         return np.isnan(table.columns[variable.name])
     if variable.kind == "categorical":
         return table.categories(variable.name)[0] < 0
-    return np.equal(table.columns[variable.name], None)
+    column = table.columns[variable.name]
+    return column.missing() if isinstance(column, TextColumn) else np.equal(column, None)
 
 
 def holds(condition: Condition, variable: Variable, table: Table) -> np.ndarray:
@@ -91,16 +92,12 @@ def draw(plan: Plan, analysis: Analysis, table: Table, masks: Masks | None = Non
     return Sample(analysis.id, rows, row_ids(plan, table, rows), flow)
 
 
-def row_ids(plan: Plan, table: Table, rows: np.ndarray) -> np.ndarray:
-    """The rows' row_id values, or their 1-based data row numbers as text."""
+def row_ids(plan: Plan, table: Table, rows: np.ndarray) -> RowLabels:
+    """The rows' row_id values, or their 1-based data row numbers as text; each label is made
+    only when asked for (a report names a handful of rows out of millions)."""
     if plan.data.row_id and plan.data.row_id in table.columns:
-        return table.columns[plan.data.row_id][rows]
-    out = np.empty(len(rows), dtype=object)
-    step = 1 << 20  # in slices, so the Python ints in between stay few
-    for start in range(0, len(rows), step):
-        numbers = (rows[start:start + step] + 1).tolist()
-        out[start:start + len(numbers)] = np.fromiter(map(str, numbers), object, len(numbers))
-    return out
+        return RowLabels(rows, table.columns[plan.data.row_id])
+    return RowLabels(rows)
 
 
 def _text(value) -> str:

@@ -22,7 +22,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from .bound import EXAMPLES, Table, Tally
+from .bound import EXAMPLES, Table, Tally, TextColumn
 from .plan import Plan
 from .problems import Exit, Problem, Stop
 
@@ -72,9 +72,8 @@ def read(plan: Plan, path: str | Path) -> Table:
         elif variable.kind == "categorical":
             codes[variable.name] = coded(arrays.pop(variable.name), missing)
             columns[variable.name] = _lookup(*codes[variable.name])
-        else:
-            columns[variable.name], _ = _released(
-                arrays, variable.name, missing, lambda d, m: (texts(d, m), Tally()))
+        else:  # identifiers stay arrow strings: no Python object per row
+            columns[variable.name] = TextColumn(identifiers(arrays.pop(variable.name), missing))
     unused = tuple(name for name in header if name not in declared and name not in columns)
     return Table(path=str(path), format=fmt, sha256=digest, size_bytes=size, rows_read=rows,
                  columns=columns, unused_columns=unused, unparsed=unparsed, codes=codes)
@@ -392,6 +391,15 @@ def texts(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None) -> np.n
     if pa.types.is_dictionary(data.type):
         return _lookup(*coded(data, missing))
     return np.asarray(data.to_numpy(zero_copy_only=False), dtype=object)
+
+
+def identifiers(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None
+                ) -> pa.ChunkedArray:
+    """A text column as arrow strings, null for missing."""
+    data = _as_text(data)
+    if pa.types.is_dictionary(data.type):
+        data = data.cast(data.type.value_type)
+    return _without_missing(data, missing)
 
 
 def _lookup(codes: np.ndarray, values: tuple[str, ...]) -> np.ndarray:
