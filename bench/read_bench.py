@@ -106,6 +106,7 @@ def measure(which: str, path: Path) -> dict:
     import resource
 
     import numpy as np  # noqa: F401  (part of the baseline in every variant)
+    import pandas  # noqa: F401  (pyarrow imports it at its first conversion from Python: ~0.4 s)
     import pyarrow as pa
     import pyarrow.compute as pc
     import pyarrow.csv as pacsv

@@ -66,11 +66,17 @@ def read(plan: Plan, path: str | Path) -> Table:
         if variable.name not in arrays:
             continue
         if variable.is_numeric:
-            columns[variable.name], tally = _released(arrays, variable.name, missing, numbers)
+            if arrays[variable.name].type == pa.float64():  # parsed as numbers: the usual case
+                columns[variable.name], tally = _floats(arrays.pop(variable.name))
+            else:
+                columns[variable.name], tally = _released(arrays, variable.name, missing, numbers)
             if tally.count:
                 unparsed[variable.name] = tally
         elif variable.kind == "categorical":
-            codes[variable.name] = coded(arrays.pop(variable.name), missing)
+            data = arrays.pop(variable.name)
+            codes[variable.name] = _dictionary_codes(data, missing) \
+                if pa.types.is_dictionary(data.type) else coded(data, missing)
+            del data
             columns[variable.name] = _lookup(*codes[variable.name])
         else:  # identifiers stay arrow strings: no Python object per row
             columns[variable.name] = TextColumn(identifiers(arrays.pop(variable.name), missing))
@@ -327,6 +333,47 @@ def _released(arrays: dict, name: str, missing, convert) -> tuple[np.ndarray, Ta
         found = found.merge(Tally(tally.count, tuple(r + at for r in tally.rows), tally.values))
         at += len(values)
     return out, found
+
+
+def _floats(column: pa.ChunkedArray) -> tuple[np.ndarray, Tally]:
+    """A float64 column as ``numbers`` gives it, converted a parsed block at a time straight
+    into the result (one copy; each block checked for nan/inf text while in cache) and each
+    block's arrow memory freed once copied."""
+    out = np.empty(len(column), np.float64)
+    chunks = column.chunks
+    del column  # the list now holds the only references
+    found, at = Tally(), 0
+    for k in range(len(chunks)):
+        chunk, chunks[k] = chunks[k], None
+        part = out[at:at + len(chunk)]
+        part[:] = chunk.to_numpy(zero_copy_only=False)
+        odd = ~np.isfinite(part)
+        if np.count_nonzero(odd) > chunk.null_count:  # nan or inf written in the file: text
+            rows = np.flatnonzero(odd & chunk.is_valid().to_numpy(zero_copy_only=False))
+            found = found.merge(Tally(len(rows), tuple(int(r) + at for r in rows[:EXAMPLES]),
+                                      tuple(str(part[r]) for r in rows[:EXAMPLES])))
+            part[rows] = np.nan
+        at += len(chunk)
+        del chunk
+    return out, found
+
+
+def _dictionary_codes(column: pa.ChunkedArray, missing: tuple[str, ...] | None = None
+                      ) -> tuple[np.ndarray, tuple[str, ...]]:
+    """``coded`` for a dictionary column, a parsed block at a time: each block's own small
+    dictionary is mapped onto the distinct values met so far, in the order first met."""
+    out = np.empty(len(column), np.int32)
+    distinct: dict[str, int] = {}
+    dropped = set(missing or ())
+    at = 0
+    for chunk in column.iterchunks():
+        values = _as_text(pa.chunked_array([chunk.dictionary])).to_pylist()
+        remap = np.array([-1 if v is None or v in dropped else
+                          distinct.setdefault(v, len(distinct)) for v in values] + [-1], np.int32)
+        indices = pc.fill_null(chunk.indices, len(values)).to_numpy()
+        out[at:at + len(chunk)] = remap[indices]
+        at += len(chunk)
+    return out, tuple(distinct)
 
 
 def numbers(data: pa.ChunkedArray, missing: tuple[str, ...] | None = None
