@@ -95,6 +95,63 @@ class TextColumn:
         return pc.fill_null(indices, -1).to_numpy().astype(np.int32), distinct
 
 
+class CodedColumn:
+    """A categorical column as int32 codes into its distinct values (-1 = missing), read like
+    a 1-d object array of str (None = missing).
+
+    ``column == value`` and ``column != value`` give boolean arrays from the codes;
+    ``column[i]`` is a str or None; an index array, mask or slice gives a CodedColumn of those
+    rows; iteration and ``np.asarray`` give Python values (the whole column as Python objects:
+    only for small columns).
+    """
+
+    dtype = np.dtype(object)
+    ndim = 1
+    __hash__ = None  # compares elementwise, like an array
+
+    def __init__(self, codes: np.ndarray, distinct: tuple[str, ...]):
+        self.codes, self.distinct = codes, tuple(distinct)
+
+    def __len__(self) -> int:
+        return len(self.codes)
+
+    @property
+    def shape(self) -> tuple[int]:
+        return (len(self.codes),)
+
+    @property
+    def nbytes(self) -> int:
+        return self.codes.nbytes
+
+    def __eq__(self, value) -> np.ndarray:
+        if value is None:
+            return self.codes < 0
+        hits = [k for k, v in enumerate(self.distinct) if v == value]
+        return np.isin(self.codes, hits) if len(hits) != 1 else self.codes == hits[0]
+
+    def __ne__(self, value) -> np.ndarray:
+        return ~(self == value)
+
+    def __getitem__(self, key):
+        if isinstance(key, (int, np.integer)):
+            code = int(self.codes[key])
+            return self.distinct[code] if code >= 0 else None
+        return CodedColumn(self.codes[key], self.distinct)
+
+    def __iter__(self):
+        return iter(self.__array__().tolist())
+
+    def __array__(self, dtype=None, copy=None):
+        table = np.empty(len(self.distinct) + 1, dtype=object)
+        table[:len(self.distinct)] = self.distinct
+        table[-1] = None  # code -1 picks the last slot
+        out = table[self.codes]
+        return out if dtype is None else out.astype(dtype)
+
+    def __repr__(self) -> str:
+        return f"CodedColumn({len(self)} rows, {len(self.distinct)} values)"
+
+
 class RowLabels:
     """The labels of a sample's rows, made only for the rows a report names.
 
@@ -132,11 +189,13 @@ class RowLabels:
 class Table:
     """The declared columns as read, with the digest of the file bytes.
 
-    ``columns`` maps column name to a numpy array: float64 (NaN = missing) for continuous,
-    count and binary variables; object arrays of str (None = missing) for categorical
-    variables. An identifier column is a :class:`TextColumn` as read from a file (millions of
-    ids cost no Python objects) or an object array of str in a table built in code; both index,
-    iterate and convert with ``np.asarray`` alike. Row order is file order.
+    ``columns`` maps column name to a numpy array of float64 (NaN = missing) for continuous,
+    count and binary variables. Categorical and identifier columns hold text (None = missing):
+    as read from a file, a :class:`CodedColumn` (categorical) or a :class:`TextColumn`
+    (identifier), so that millions of rows cost no Python objects; in a table built in code
+    (synthetic data, a streamed batch) they may be object arrays of str. All of them index,
+    compare (``==``, ``!=``), iterate and convert with ``np.asarray`` alike. Row order is file
+    order.
     """
 
     path: str
@@ -156,6 +215,8 @@ class Table:
         """A text column as (codes, distinct values), code -1 for missing."""
         if name in self.codes:
             return self.codes[name]
+        if isinstance(self.columns[name], CodedColumn):
+            return self.columns[name].codes, self.columns[name].distinct
         if isinstance(self.columns[name], TextColumn):
             return self.columns[name].categories()
         import pandas as pd

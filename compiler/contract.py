@@ -19,7 +19,7 @@ import difflib
 
 import numpy as np
 
-from .bound import EXAMPLES, Sample, Table, Tally, TextColumn
+from .bound import EXAMPLES, CodedColumn, Sample, Table, Tally, TextColumn
 from .plan import Analysis, Plan, Variable
 from .problems import Problem
 
@@ -78,10 +78,12 @@ def _within(values: np.ndarray, low: float | None, high: float | None) -> bool:
 
 
 def missing(values: np.ndarray, offset: int = 0) -> Tally:
-    """Missing values: NaN in a numeric array, code -1 in codes, None in an object array or a
-    TextColumn."""
+    """Missing values: NaN in a numeric array, code -1 in codes or a CodedColumn, None in an
+    object array or a TextColumn."""
     if isinstance(values, TextColumn):
         return tally(values.missing(), values, offset)
+    if isinstance(values, CodedColumn):
+        return tally(values.codes < 0, values, offset)
     if values.dtype == object:
         return tally(np.equal(values, None), values, offset)
     if np.issubdtype(values.dtype, np.integer):

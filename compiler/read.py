@@ -22,7 +22,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from .bound import EXAMPLES, Table, Tally, TextColumn
+from .bound import EXAMPLES, CodedColumn, Table, Tally, TextColumn
 from .plan import Plan
 from .problems import Exit, Problem, Stop
 
@@ -77,7 +77,7 @@ def read(plan: Plan, path: str | Path) -> Table:
             codes[variable.name] = _dictionary_codes(data, missing) \
                 if pa.types.is_dictionary(data.type) else coded(data, missing)
             del data
-            columns[variable.name] = _lookup(*codes[variable.name])
+            columns[variable.name] = CodedColumn(*codes[variable.name])
         else:  # identifiers stay arrow strings: no Python object per row
             columns[variable.name] = TextColumn(identifiers(arrays.pop(variable.name), missing))
     unused = tuple(name for name in header if name not in declared and name not in columns)
