@@ -93,7 +93,10 @@ def missing(values: np.ndarray, offset: int = 0) -> Tally:
 
 def level_counts(codes: np.ndarray, distinct: tuple[str, ...]) -> dict[str, int]:
     """How many rows hold each distinct value (merge batches by adding the dicts)."""
-    counts = np.bincount(codes + 1, minlength=len(distinct) + 1)[1:]  # slot 0: missing (-1)
+    if len(distinct) <= 32:  # a comparison per value: bincount would first widen every code
+        counts = [np.count_nonzero(codes == k) for k in range(len(distinct))]
+    else:
+        counts = np.bincount(codes + 1, minlength=len(distinct) + 1)[1:]  # slot 0: missing
     return {value: int(n) for value, n in zip(distinct, counts) if n}
 
 
@@ -150,11 +153,11 @@ def _text_identifier_faults(ids: TextColumn) -> tuple[Tally, Tally]:
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    absent = ids.missing()
-    missing_ids = tally(absent, ids) if ids.data.null_count else Tally()
+    missing_ids = tally(ids.missing(), ids) if ids.data.null_count else Tally()
     present = ids.data.drop_null() if ids.data.null_count else ids.data
     if len(present) < 2 or pc.all(pc.less(present[:-1], present[1:])).as_py():
         return Tally(), missing_ids
+    absent = ids.missing()
     whole = ids.data.combine_chunks() if ids.data.num_chunks else pa.array([], pa.string())
     hashes = _hashes(whole)
     del whole

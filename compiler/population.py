@@ -86,7 +86,7 @@ def draw(plan: Plan, analysis: Analysis, table: Table, masks: Masks | None = Non
         left = int(np.count_nonzero(keep))
         by_missing.append(FlowStep(f"missing {name}", name, in_sample - left))
         in_sample = left
-    rows = np.flatnonzero(keep).astype(np.int64)
+    rows = np.flatnonzero(keep).astype(np.int64, copy=False)
     flow = SampleFlow(table.rows_read, analysis.population, tuple(by_condition),
                       rows_in_population, tuple(by_missing), in_sample)
     return Sample(analysis.id, rows, row_ids(plan, table, rows), flow)
