@@ -2,8 +2,10 @@
 
 Every column the dictionary declares is read, and no other; each with the type its kind
 implies: identifiers and categoricals as text (so `007` stays `007`), continuous, count and
-binary variables as float64 with NaN for missing. The sha256 of the file's bytes is taken in
-the same pass. A file that cannot be read stops the run (exit 3) with a problem naming the file
+binary variables as float64 with NaN for missing. Text stays out of Python objects: an
+identifier column is kept as arrow strings (``bound.TextColumn``), a categorical column as
+int32 codes into its distinct values (``bound.CodedColumn``); numbers are copied into numpy a
+parsed block at a time. The sha256 of the file's bytes is taken in the same pass. A file that cannot be read stops the run (exit 3) with a problem naming the file
 and, for a ragged row, the line; values that are not numbers in a numeric column are kept for
 the data contract (``Table.unparsed``) so that bind reports them with every other finding.
 
