@@ -26,7 +26,7 @@ class Design:
     tier_width: tuple[int, ...]
     exposure_columns: tuple[int, ...]
     cluster: np.ndarray | None = None  # cluster codes per row, for clustered covariance
-    row_ids: np.ndarray | None = None
+    row_ids: object = None  # bound.RowLabels or an array of labels: labels made when asked
 
 
 @dataclass(frozen=True)
