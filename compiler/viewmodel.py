@@ -133,8 +133,12 @@ def decision_view(d: dict, notes: Notes) -> dict:
         if key in ("change", "threshold"):
             return notes.cell(value, why(key), f.percent if key == "threshold" else f.change,
                               default="")
-        if key == "alpha_used":
+        if key in ("alpha_used", "family_alpha"):
             return notes.cell(value, why(key), f.alpha, default="")
+        if key == "family_step" and isinstance(value, (int, float)):
+            return Cell(f.integer(int(value)))
+        if key in ("df", "df_denominator"):
+            return notes.cell(value, why(key), f.df, default="")
         if isinstance(value, (bool, str)):
             return Cell(f.num(value) if isinstance(value, bool) else value, numeric=False)
         if isinstance(value, (list, tuple)) and len(value) == 2:
