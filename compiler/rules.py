@@ -186,7 +186,7 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
     reason = (f"the {end} end of the {level_percent(1 - 2 * alpha)} interval for the {what} "
               f"{term}, {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
               f"{word} the margin {fmt_num(decision.margin)} "
-              f"(non-inferiority p = {fmt_p(p)}, α = {fmt_alpha(alpha)})")
+              f"({fmt_p_phrase('non-inferiority p', p)}, α = {fmt_alpha(alpha)})")
     return Finding("supported" if cleared else "not supported", reason, numbers, p,
                    "non-inferiority p")
 
@@ -221,7 +221,7 @@ def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInfer
               f"{_bound_words(analysis, ci_low)} to {_bound_words(analysis, ci_high)}, "
               f"{'lies' if inside else 'does not lie'} inside the margins "
               f"{fmt_num(decision.margins[0])} to {fmt_num(decision.margins[1])} "
-              f"(TOST p = {fmt_p(p)}, α = {fmt_alpha(alpha)})")
+              f"({fmt_p_phrase('TOST p', p)}, α = {fmt_alpha(alpha)})")
     return Finding("supported" if inside else "not supported", reason, numbers, p, "TOST p")
 
 
