@@ -79,6 +79,15 @@ def wald_test(estimates, cov, columns, df: float | None, test: str) -> JointTest
     v = np.asarray(cov, dtype=np.float64)[np.ix_(columns, columns)]
     if not (np.all(np.isfinite(b)) and np.all(np.isfinite(v))):
         return JointTest(test, q, df, None, None, "the covariance matrix is not finite")
+    # A robust covariance can be singular in exact arithmetic yet pass Cholesky in floating
+    # point: a clustered one has rank at most (clusters − 1), so testing more columns than
+    # that — e.g. cluster-level dummies — would give a statistic of 1e18. Check the rank first
+    # (numpy.linalg.matrix_rank's tolerance: largest singular value · q · ε).
+    rank = int(np.linalg.matrix_rank(v, hermitian=True))
+    if rank < q:
+        return JointTest(test, q, df, None, None,
+                         f"the covariance of the {q} tested coefficients is singular (rank "
+                         f"{rank}); a clustered covariance has rank at most clusters − 1")
     try:
         factor = np.linalg.cholesky(v)
     except np.linalg.LinAlgError:

@@ -132,3 +132,20 @@ def test_a_single_cluster_gives_none_not_nan():
     result = fit(plan, analysis, design(plan, analysis, fk.bound(columns, [analysis])))
     assert all(c.std_error is None and c.reason for c in result.tier("adjusted").coefficients)
     assert all(np.isfinite(v) for _, v in fk.walk_numbers(result))
+
+
+def test_a_wald_test_beyond_the_cluster_covariance_rank_is_none_with_a_reason():
+    # 12 clusters and a tier adding the 11 site dummies (plus age): the clustered covariance has
+    # rank at most 12 − 1 = 11 (numpy.linalg.matrix_rank of statsmodels' own cluster covariance
+    # agrees), fewer than the 12 tested columns, so the Wald statistic does not exist.
+    columns = _columns()
+    analysis = fk.analysis("y", "arm", [("crude", []), ("sites", ["age", "site"])], "gaussian",
+                           covariance=Covariance("cluster", "site"))
+    plan = fk.plan(_variables(), [analysis])
+    d = design(plan, analysis, fk.bound(columns, [analysis]))
+    comparison = fit(plan, analysis, d).comparisons[0]
+    reference = sm.OLS(d.y, d.x).fit(cov_type="cluster", cov_kwds={"groups": d.cluster})
+    added = reference.cov_params()[2:, 2:]  # reference library
+    assert np.linalg.matrix_rank(added, hermitian=True) < comparison.df_added == 12
+    assert comparison.statistic is None and comparison.p_value is None
+    assert "singular" in comparison.reason and "clusters − 1" in comparison.reason
