@@ -60,17 +60,20 @@ def _influential(cooks: np.ndarray, row_ids) -> tuple[Influential, ...]:
 
 
 def _normality(residuals: np.ndarray):
-    from scipy import stats
-
     n = len(residuals)
     if n < 3:
         return None, None, None, "normality tests need at least 3 rows"
     if n <= SHAPIRO_LIMIT:
+        from scipy import stats
+
         result = stats.shapiro(residuals)
         return "Shapiro-Wilk", finite_or_none(result.statistic), finite_or_none(result.pvalue), None
-    result = stats.normaltest(residuals)
-    return ("D'Agostino-Pearson", finite_or_none(result.statistic),
-            finite_or_none(result.pvalue), None)
+    # scipy.stats.normaltest's formulas from the residuals' moments (the streamed run's code),
+    # so a large run never imports scipy.stats
+    from .stream_diagnostics import CentralMoments, dagostino_pearson
+
+    statistic, p_value = dagostino_pearson(CentralMoments.of(residuals))
+    return "D'Agostino-Pearson", finite_or_none(statistic), finite_or_none(p_value), None
 
 
 def breusch_pagan(n: int, p: int, squares: np.ndarray, projected: np.ndarray):

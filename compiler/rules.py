@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from scipy import stats
+from scipy import special
 
 from .fitted import AnalysisFit, Coefficient, ExposureInference
 from .plan import Analysis, Decision
@@ -43,9 +43,27 @@ def base_numbers(analysis: Analysis) -> dict:
     return numbers
 
 
-def _ref(df: float | None):
+class _Reference:
+    """t on ``df`` degrees of freedom, or the standard normal when df is None: cdf, sf and ppf
+    by the scipy.special functions scipy.stats.t and scipy.stats.norm themselves call (the
+    same numbers), without importing scipy.stats (about a second of every run)."""
+
+    def __init__(self, df: float | None):
+        self.df = df
+
+    def cdf(self, x: float) -> float:
+        return special.ndtr(x) if self.df is None else special.stdtr(self.df, x)
+
+    def sf(self, x: float) -> float:
+        return self.cdf(-x)
+
+    def ppf(self, q: float) -> float:
+        return special.ndtri(q) if self.df is None else special.stdtrit(self.df, q)
+
+
+def _ref(df: float | None) -> _Reference:
     """The reference distribution: t on ``df`` degrees of freedom, or the standard normal."""
-    return stats.norm if df is None else stats.t(df)
+    return _Reference(df)
 
 
 def _exp(x: float | None) -> float | None:

@@ -242,7 +242,7 @@ class _GaussianReport:
 
     def _breusch_pagan(self):
         """Koenker's LM = n·‖Q[:, 1:]ᵀ e²‖² / Σ(e² − mean)², as diagnostics.breusch_pagan."""
-        from scipy import stats
+        from scipy import special
 
         from .inference import finite_or_none
 
@@ -250,7 +250,7 @@ class _GaussianReport:
         if self.squares.m2 <= 0.0 or w < 2:
             return None, None
         lm = self.n * float(self.projected @ self.projected) / self.squares.m2
-        return finite_or_none(lm), finite_or_none(stats.chi2.sf(lm, w - 1))
+        return finite_or_none(lm), finite_or_none(special.chdtrc(w - 1, lm))
 
 
 # --- binomial and poisson -----------------------------------------------------------------
