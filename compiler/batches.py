@@ -60,7 +60,7 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
 
     delimiter = "\t" if fmt == "tsv" else ","
     with path.open("rb") as raw:
-        source = read._HashingReader(raw) if hashing else _Plain(raw)
+        source = read._HashingReader(raw, hashing=hashing)
         facts.header = read._header(source.peek_record(), delimiter, path)
         facts.present = read._present(plan, facts.header)
         text = pa.string()
@@ -123,37 +123,6 @@ def _gather_rows() -> int:
 
 def _batch_bytes() -> int:
     return int(os.environ.get("PRESPEC_STREAM_BATCH_BYTES") or BATCH_BYTES)
-
-
-class _Plain:
-    """The reader shape read._HashingReader has, without the hashing (for later passes)."""
-
-    def __init__(self, raw):
-        self._raw, self._replay, self.closed = raw, b"", False
-
-    def peek_record(self) -> bytes:
-        while b"\n" not in self._replay:
-            chunk = self._raw.read(1 << 16)
-            if not chunk:
-                break
-            self._replay += chunk
-        return self._replay
-
-    def read(self, n: int = -1) -> bytes:
-        if self._replay:
-            head = self._replay if n < 0 else self._replay[:n]
-            self._replay = self._replay[len(head):]
-            return head
-        return self._raw.read(n)
-
-    def readable(self) -> bool:
-        return True
-
-    def seekable(self) -> bool:
-        return False
-
-    def close(self) -> None:
-        self.closed = True
 
 
 def _parquet(plan, path, facts, hashing):

@@ -104,19 +104,21 @@ class _HashingReader:
     """A binary file that hashes the bytes as they are read: one pass gives parse and digest.
 
     pyarrow pulls blocks through ``read`` on its I/O thread; hashlib releases the GIL on large
-    buffers, so hashing overlaps with parsing. The header peeked first is replayed.
+    buffers, so hashing overlaps with parsing. The header peeked first is replayed. With
+    ``hashing=False`` it only replays the header (a streamed run's later passes).
     """
 
-    def __init__(self, raw):
+    def __init__(self, raw, hashing: bool = True):
         self._raw = raw
-        self._hash = hashlib.sha256()
+        self._hash = hashlib.sha256() if hashing else None
         self._replay = b""
         self.size = 0
         self.closed = False
 
     def _pull(self, n: int) -> bytes:
         chunk = self._raw.read(n)
-        self._hash.update(chunk)
+        if self._hash is not None:
+            self._hash.update(chunk)
         self.size += len(chunk)
         return chunk
 
