@@ -80,18 +80,10 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
 
 
 def tier_terms(analysis: Analysis) -> list[tuple[Term, ...]]:
-    """The terms each tier adds to the one before, the exposure making up tier 0."""
-    exposure = Term("variable", (analysis.exposure,))
-    added: list[tuple[Term, ...]] = []
-    before: tuple[Term, ...] = ()
-    for tier in analysis.tiers:
-        terms = tier.terms
-        if not before and (not terms or terms[0].variables != exposure.variables
-                           or terms[0].form != "variable"):
-            terms = (exposure,) + tuple(terms)  # the contract says tier 0 holds it; be sure
-        added.append(tuple(terms[len(before):]))
-        before = terms
-    return added
+    """The terms each tier adds to the one before, the exposure making up tier 0 (resolve
+    builds the first tier's ``terms`` as the exposure alone)."""
+    first, *later = analysis.tiers
+    return [first.terms, *(tier.added for tier in later)]
 
 
 def _other_levels(variable: Variable) -> list[str]:
