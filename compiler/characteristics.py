@@ -15,11 +15,10 @@ Quartiles are numpy.quantile's default: linear interpolation between order stati
 
 from __future__ import annotations
 
-import math
-
 import numpy as np
 
 from .bound import BoundData, Table
+from .inference import finite_or_none
 from .plan import Analysis, Plan, Variable
 from .population import holds, missing_mask
 
@@ -114,10 +113,10 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
         return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min", "max")),
                 "reason": EMPTY}
     q1, median, q3 = np.quantile(values, [0.25, 0.5, 0.75])
-    out = {"n": n, "mean": _finite(np.mean(values)),
-           "sd": _finite(np.std(values, ddof=1)) if n >= 2 else None,
-           "median": _finite(median), "q1": _finite(q1), "q3": _finite(q3),
-           "min": _finite(np.min(values)), "max": _finite(np.max(values))}
+    out = {"n": n, "mean": finite_or_none(np.mean(values)),
+           "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None,
+           "median": finite_or_none(median), "q1": finite_or_none(q1), "q3": finite_or_none(q3),
+           "min": finite_or_none(np.min(values)), "max": finite_or_none(np.max(values))}
     if n < 2:
         out["reason"] = "a standard deviation needs at least two rows"
     return out
@@ -125,8 +124,3 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
 
 def _ratio(count: int, n: int) -> float | None:
     return count / n if n else None
-
-
-def _finite(x) -> float | None:
-    x = float(x)
-    return x if math.isfinite(x) else None

@@ -18,7 +18,8 @@ from .multiplicity import Adjusted, adjust
 from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
 from .rules import Finding, base_numbers, change_in_estimate, equivalence, non_inferiority
 from .rules import superiority, tier_selection
-from .rules_text import METHOD_NAME, exposure_term, finite, fmt_alpha, fmt_num
+from .inference import finite_or_none
+from .rules_text import METHOD_NAME, exposure_term, fmt_alpha, fmt_num
 from .rules_text import fmt_p_phrase
 from .verdicts import AssumptionOutcome, Verdict
 
@@ -88,8 +89,8 @@ def _assumption_state(assumption: Assumption, analysis: Analysis, fit: AnalysisF
     """(statistic, p, tier, triggered, words, undetermined) of one check."""
     if assumption.check == "constant-variance":
         diagnostics = fit.diagnostics
-        p = None if diagnostics is None else finite(diagnostics.breusch_pagan_p)
-        statistic = None if diagnostics is None else finite(diagnostics.breusch_pagan_statistic)
+        p = None if diagnostics is None else finite_or_none(diagnostics.breusch_pagan_p)
+        statistic = None if diagnostics is None else finite_or_none(diagnostics.breusch_pagan_statistic)
         tier = analysis.report_tier if diagnostics is None else diagnostics.tier
         if p is None:
             why = diagnostics.reason if diagnostics is not None and diagnostics.reason else (
@@ -101,7 +102,7 @@ def _assumption_state(assumption: Assumption, analysis: Analysis, fit: AnalysisF
                  f"{'below' if triggered else 'not below'} {fmt_alpha(assumption.p_below)}")
         return statistic, p, tier, triggered, words, False
     tier_fit = fit.tier(tier)
-    dispersion = finite(tier_fit.dispersion)
+    dispersion = finite_or_none(tier_fit.dispersion)
     if dispersion is None:
         why = f" ({tier_fit.reason})" if tier_fit.reason else ""
         return None, None, tier, False, (
@@ -213,7 +214,7 @@ def _evaluate(plan: Plan, decision: Decision, fit: AnalysisFit, alpha: float
 
 def _verdict(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
              **extra) -> Verdict:
-    numbers = {k: (finite(v) if isinstance(v, float) else v)
+    numbers = {k: (finite_or_none(v) if isinstance(v, float) else v)
                for k, v in sorted(finding.numbers.items())}
     # rules that read no standard error (tier selection, change in estimate) name the
     # analysis' own covariance

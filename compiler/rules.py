@@ -17,8 +17,9 @@ from dataclasses import dataclass, field
 from scipy import special
 
 from .fitted import AnalysisFit, Coefficient, ExposureInference
+from .inference import finite_or_none
 from .plan import Analysis, Decision
-from .rules_text import (RATIO, SCALE, finite, fmt_alpha, fmt_num, fmt_p, fmt_p_phrase,
+from .rules_text import (RATIO, SCALE, fmt_alpha, fmt_num, fmt_p_phrase,
                          fmt_percent, level_percent)
 from .verdicts import VerdictWord
 
@@ -70,7 +71,7 @@ def _exp(x: float | None) -> float | None:
     if x is None:
         return None
     try:
-        return finite(math.exp(x))
+        return finite_or_none(math.exp(x))
     except OverflowError:
         return None
 
@@ -94,8 +95,8 @@ def _coefficient(inference: ExposureInference, term: str, numbers: dict
     coef = next((c for c in inference.coefficients if c.term == term), None)
     if coef is None:
         return None, f"the fit holds no coefficient {term} under {inference.covariance} covariance"
-    numbers.update(estimate=finite(coef.estimate), std_error=finite(coef.std_error),
-                   covariance=inference.covariance, df=finite(inference.df))
+    numbers.update(estimate=finite_or_none(coef.estimate), std_error=finite_or_none(coef.std_error),
+                   covariance=inference.covariance, df=finite_or_none(inference.df))
     if numbers["estimate"] is None or numbers["std_error"] is None or coef.std_error <= 0:
         why = f": {coef.reason}" if coef.reason else ""
         return None, f"the {term} estimate or its standard error could not be computed{why}"
@@ -106,7 +107,7 @@ def _interval(numbers: dict, analysis: Analysis, coverage: float, df: float | No
     """Fill ci_low/ci_high (and the ratios) with the two-sided ``coverage`` interval."""
     q = float(_ref(df).ppf(0.5 + coverage / 2))
     est, se = numbers["estimate"], numbers["std_error"]
-    numbers.update(ci_level=coverage, ci_low=finite(est - q * se), ci_high=finite(est + q * se))
+    numbers.update(ci_level=coverage, ci_low=finite_or_none(est - q * se), ci_high=finite_or_none(est + q * se))
     if analysis.family != "gaussian":
         numbers.update(ratio=_exp(est), ratio_ci_low=_exp(numbers["ci_low"]),
                        ratio_ci_high=_exp(numbers["ci_high"]))
@@ -128,16 +129,16 @@ def superiority(analysis: Analysis, decision: Decision, inference: ExposureInfer
     if coef is None:
         return _undetermined(why, numbers)
     est, se, df = numbers["estimate"], numbers["std_error"], inference.df
-    statistic = finite(coef.statistic) if coef.statistic is not None else finite(est / se)
+    statistic = finite_or_none(coef.statistic) if coef.statistic is not None else finite_or_none(est / se)
     if statistic is None:
         return _undetermined(f"the {term} test statistic could not be computed", numbers)
     if decision.direction == "two-sided":
-        p = finite(coef.p_value)
+        p = finite_or_none(coef.p_value)
         if p is None:
-            p = finite(2 * float(_ref(df).sf(abs(statistic))))
+            p = finite_or_none(2 * float(_ref(df).sf(abs(statistic))))
         name, coverage = "two-sided p", 1 - alpha
     else:
-        p = finite(_one_sided_p(statistic, decision.direction, df))
+        p = finite_or_none(_one_sided_p(statistic, decision.direction, df))
         name, coverage = f"one-sided p ({decision.direction})", 1 - 2 * alpha
     numbers.update(statistic=statistic, p_value=p)
     _interval(numbers, analysis, coverage, df)
@@ -152,13 +153,13 @@ def superiority(analysis: Analysis, decision: Decision, inference: ExposureInfer
 def _joint_superiority(analysis: Analysis, inference: ExposureInference, alpha: float,
                        numbers: dict) -> Finding:
     joint = inference.joint
-    if joint is None or joint.p_value is None or finite(joint.p_value) is None:
+    if joint is None or joint.p_value is None or finite_or_none(joint.p_value) is None:
         why = f": {joint.reason}" if joint is not None and joint.reason else ""
         return _undetermined(f"the joint test of {analysis.exposure} could not be computed"
                              f"{why}", numbers)
     p = float(joint.p_value)
-    numbers.update(statistic=finite(joint.statistic), p_value=p, df=joint.df,
-                   df_denominator=finite(joint.df_denominator), joint_test=joint.test)
+    numbers.update(statistic=finite_or_none(joint.statistic), p_value=p, df=joint.df,
+                   df_denominator=finite_or_none(joint.df_denominator), joint_test=joint.test)
     name = f"joint {joint.test} test of {analysis.exposure} ({joint.df} df): p"
     below = p < alpha
     reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
@@ -186,8 +187,8 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
         return _undetermined(why, numbers)
     margin = _to_analysis_scale(analysis, decision.margin)
     est, se, df = numbers["estimate"], numbers["std_error"], inference.df
-    statistic = finite((est - margin) / se)
-    p = None if statistic is None else finite(_one_sided_p(statistic, decision.direction, df))
+    statistic = finite_or_none((est - margin) / se)
+    p = None if statistic is None else finite_or_none(_one_sided_p(statistic, decision.direction, df))
     numbers.update(statistic=statistic, p_value=p, margin_analysis_scale=margin)
     _interval(numbers, analysis, 1 - 2 * alpha, df)
     if decision.direction == "higher":
@@ -224,8 +225,8 @@ def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInfer
     est, se, df = numbers["estimate"], numbers["std_error"], inference.df
     ref = _ref(df)
     # two one-sided tests: H1 effect > low, and H1 effect < high
-    p_low = finite(float(ref.sf((est - low) / se)))
-    p_high = finite(float(ref.cdf((est - high) / se)))
+    p_low = finite_or_none(float(ref.sf((est - low) / se)))
+    p_high = finite_or_none(float(ref.cdf((est - high) / se)))
     p = None if p_low is None or p_high is None else max(p_low, p_high)
     numbers.update(p_value=p, p_lower_margin=p_low, p_upper_margin=p_high,
                    margins_analysis_scale=[low, high])
@@ -255,7 +256,7 @@ def tier_selection(analysis: Analysis, decision: Decision, fit: AnalysisFit) -> 
     for reduced, larger in zip(names, names[1:]):
         comparison = next((c for c in fit.comparisons
                            if c.from_tier == reduced and c.to_tier == larger), None)
-        p = None if comparison is None else finite(comparison.p_value)
+        p = None if comparison is None else finite_or_none(comparison.p_value)
         needed = None if p is None else p < alpha
         walked.append({"from": reduced, "to": larger, "p_value": p, "needed": needed,
                        "test": None if comparison is None else comparison.test})
@@ -301,7 +302,7 @@ def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
     estimates = []
     for tier in (decision.from_tier, decision.tier):
         coef = next((c for c in fit.tier(tier).coefficients if c.term == term), None)
-        estimates.append(None if coef is None else finite(coef.estimate))
+        estimates.append(None if coef is None else finite_or_none(coef.estimate))
     start, end = estimates
     numbers.update(estimate_from=start, estimate=end)
     if start is None or end is None:
@@ -312,7 +313,7 @@ def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
                              f"so a relative change is not defined", numbers)
     change = (end - start) / abs(start)
     flagged = abs(change) > decision.threshold
-    numbers.update(change=finite(change), flagged=flagged)
+    numbers.update(change=finite_or_none(change), flagged=flagged)
     verdict_words = ("confounding flagged" if flagged else "no confounding flagged")
     reason = (f"the {term} estimate ({SCALE[analysis.family]}) moved from {fmt_num(start)} in "
               f"{decision.from_tier} to {fmt_num(end)} in {decision.tier}, a change of "

@@ -8,7 +8,6 @@ No heavy imports here: `check` must start fast.
 
 from __future__ import annotations
 
-import math
 
 from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
 
@@ -215,11 +214,3 @@ def describe_minimum_information(analysis: Analysis) -> str | None:
         return None
     return (f"minimum information for analysis {analysis.id}: {' and '.join(parts)}; "
             f"otherwise its verdicts are undetermined.")
-
-
-def finite(x: float | None) -> float | None:
-    """A plain float, or None for anything that is not a finite number."""
-    if x is None:
-        return None
-    x = float(x)
-    return x if math.isfinite(x) else None

@@ -25,6 +25,7 @@ from . import diagnostics as memory_diagnostics
 from . import fit as memory_fit
 from .covariance import distinct_covariances, sandwich_covariances
 from .fitted import AnalysisFit, Design, Diagnostics, Influential
+from .inference import finite_or_none
 from .irls import Moments, fit_tiers, moments_combine, moments_map
 from .plan import Analysis, Covariance, Plan
 from .qr import triangular_inverse
@@ -232,8 +233,6 @@ class _GaussianReport:
             reason="; ".join(reasons) or None)
 
     def _normality(self):
-        from .inference import finite_or_none
-
         if self.n <= memory_diagnostics.SHAPIRO_LIMIT:
             kept = np.concatenate(self.kept_residuals) if self.kept_residuals else np.zeros(0)
             return memory_diagnostics._normality(kept)
@@ -243,8 +242,6 @@ class _GaussianReport:
     def _breusch_pagan(self):
         """Koenker's LM = n·‖Q[:, 1:]ᵀ e²‖² / Σ(e² − mean)², as diagnostics.breusch_pagan."""
         from scipy import special
-
-        from .inference import finite_or_none
 
         w = self.tier.width
         if self.squares.m2 <= 0.0 or w < 2:
@@ -276,7 +273,7 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         failure = _glm_failure(analysis.family, fit, fit_glm)
         rinv = None if failure else triangular_inverse(fit.r_solution)
         numbers.append(GlmTier(fit.width, fit.params, None, None, rinv,
-                               _finite(fit.log_likelihood), failure))
+                               finite_or_none(fit.log_likelihood), failure))
         notes.append([failure] if failure else [])
     kinds = _robust_kinds(covariances)
     totals = [{} for _ in widths]
@@ -296,7 +293,7 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         seen += len(design.y)
         _show(progress, f"{analysis.id}: residuals, {seen:,} of {n:,} rows")
     sandwiches = _finish_sandwiches(totals, covariances, n, widths)
-    null_deviance = _finite(null.deviance) if null.converged else None
+    null_deviance = finite_or_none(null.deviance) if null.converged else None
     tiers = tuple(
         fit_glm._tier_fit(analysis, header, tier, k, numbers[k], covariances, None, notes[k],
                           sandwiches[k], null_deviance,
@@ -308,12 +305,6 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         for k in range(1, len(numbers)))
     diagnostics = report_pass.diagnostics(first.r, header, analysis.report_tier)
     return tiers, comparisons, diagnostics
-
-
-def _finite(value):
-    from .inference import finite_or_none
-
-    return finite_or_none(value)
 
 
 def _glm_failure(family: str, fit, fit_glm) -> str | None:
