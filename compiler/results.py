@@ -195,7 +195,8 @@ def _analysis(plan, analysis, bound, fit, summarise) -> dict:
     flow = sample.flow
     return {
         "id": analysis.id, "family": analysis.family, "link": LINKS[analysis.family],
-        "outcome": analysis.outcome, "exposure": analysis.exposure, "offset": analysis.offset,
+        "outcome": analysis.outcome, "exposure_variable": analysis.exposure,
+        "offset": analysis.offset,
         "population": analysis.population, "rows_in_population": int(flow.rows_in_population),
         "n": int(fit.n), "covariance": analysis.covariance.label,
         "confidence": number(analysis.confidence), "report_tier": analysis.report_tier,

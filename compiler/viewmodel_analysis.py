@@ -69,7 +69,7 @@ def analysis_view(a: dict, plot_data: dict | None, notes: Notes) -> dict:
 
 def _facts(a: dict) -> list[tuple[str, str]]:
     facts = [("model", FAMILY_WORDS[a["family"]]), ("outcome", a["outcome"]),
-             ("exposure", exposure_variable(a)),
+             ("exposure", a["exposure_variable"]),
              ("population", a["population"] or "all rows"),
              ("rows in population", f.integer(a["rows_in_population"])),
              ("rows analysed", f.integer(a["n"]))]
@@ -80,14 +80,6 @@ def _facts(a: dict) -> list[tuple[str, str]]:
     facts += [("covariance", a["covariance"]), ("confidence", f.level(a["confidence"])),
               ("report tier", a["report_tier"])]
     return facts
-
-
-def exposure_variable(a: dict) -> str:
-    chars = a.get("characteristics") or {}
-    if chars.get("exposure"):
-        return chars["exposure"]
-    terms = [r["term"] for r in a["exposure"]]
-    return terms[0].split("=")[0] if terms else "(none)"
 
 
 def _cell(notes: Notes, value, reason, fmt=None) -> Cell:

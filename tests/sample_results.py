@@ -169,6 +169,7 @@ def primary_analysis() -> dict:
              "df_denominator": 532.0, "statistic": 196.3, "p_value": 1.2e-63, "reason": None},
             {"from": "baseline", "to": "full", "test": "F", "df_added": 6,
              "df_denominator": 526.0, "statistic": 17.62, "p_value": 3.1e-18, "reason": None}],
+        "exposure_variable": "guidance",
         "exposure": _exposure_rows(tiers, "gaussian"),
         "diagnostics": {"tier": "full",
                         "vif": [{"term": "guidance=leaflet", "vif": 1.34},
@@ -221,6 +222,7 @@ def settled_analysis() -> dict:
         "comparisons": [{"from": "crude", "to": "adjusted", "test": "LR", "df_added": 3,
                          "df_denominator": None, "statistic": 72.2, "p_value": 1.4e-15,
                          "reason": None}],
+        "exposure_variable": "guidance",
         "exposure": _exposure_rows(tiers, "binomial"),
         "diagnostics": {"tier": "adjusted", "vif": [], "normality": {
             "test": None, "statistic": None, "p_value": None},
@@ -263,6 +265,7 @@ def awakenings_analysis() -> dict:
         "comparisons": [{"from": "crude", "to": "adjusted", "test": "LR", "df_added": 3,
                          "df_denominator": None, "statistic": 61.3, "p_value": 3.1e-13,
                          "reason": None}],
+        "exposure_variable": "guidance",
         "exposure": _exposure_rows(tiers, "poisson"),
         "diagnostics": None,
         "warnings": [],

@@ -86,6 +86,13 @@ def test_the_same_inputs_give_the_same_bytes(analysed):
     assert results.to_bytes(build(analysed)) == results.to_bytes(build(analysed))
 
 
+def test_each_analysis_names_its_exposure_variable_beside_the_exposure_rows(analysed):
+    # the results core uses `exposure` for the rows across tiers, so the variable needs its own key
+    for analysis, section in zip(analysed.plan.analyses, build(analysed)["analyses"]):
+        assert section["exposure_variable"] == analysis.exposure
+        assert {row["tier"] for row in section["exposure"]} == {t.name for t in analysis.tiers}
+
+
 def test_the_data_file_is_named_without_its_folder(analysed):
     document = build(analysed)
     assert document["data"]["file"] == "final.csv"
