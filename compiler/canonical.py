@@ -18,7 +18,6 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 import json
-import math
 from typing import Callable, Iterable
 
 _RENAMED = {"added": "add", "conditions": "where"}

@@ -137,7 +137,7 @@ def _analysis_lines(a: dict) -> list[str]:
         lines.append(f"  offset: log({a['offset']}) enters every tier with coefficient 1")
     for number, tier in enumerate(a["tiers"], start=1):
         adds = (f" adds {', '.join(tier['added_terms'])}" if tier["added_terms"]
-                else f" holds the exposure alone")
+                else " holds the exposure alone")
         lines.append(f"  tier {number} {tier['name']}{adds} — {len(tier['columns'])} columns:")
         lines.append(_wrap(", ".join(tier["columns"]), "      ", "      "))
     if a["comparisons"]:
