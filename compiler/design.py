@@ -46,7 +46,9 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
     # peak holds the design and one column, never a list of every column besides the matrix.
     added = tier_terms(analysis)
     width = 1 + sum(len(term_labels(plan, term)) for terms in added for term in terms)
-    x = np.empty((len(sample.rows), width), dtype=np.float64)  # C order: row chunks for the QR
+    # F order: each column is filled in one contiguous pass, and a block of rows is still one
+    # contiguous run per column when the QR takes it
+    x = np.empty((len(sample.rows), width), dtype=np.float64, order="F")
     x[:, 0] = 1.0
     labels: list[str] = [INTERCEPT]
     column_term: list[str] = [INTERCEPT]

@@ -40,6 +40,7 @@ class Analysed:
     fits: tuple  # AnalysisFit per analysis, in plan order
     verdicts: tuple  # Verdict per decision, in plan order
     assumptions: tuple  # AssumptionOutcome per assumption
+    characteristics: dict | None = None  # analysis id → characteristics.summarise's summary
 
 
 def compile_plan(path: str | Path) -> Plan:
@@ -56,18 +57,27 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
     """read → bind → design → fit → decide. Raises problems.Stop (exit 3) on a broken contract.
     Streams the data in batches when ``stream`` or when it would not fit the memory budget
     (compiler/stream.py); ``progress`` shows a progress line on a terminal."""
+    from concurrent.futures import ThreadPoolExecutor
+
     from . import bind, decide, design, fit, read, stream as streamed
+    from .characteristics import summarise
 
     fmt = None if table is not None else streamed.streaming_format(plan, data_path, bool(stream))
     if fmt is not None:
         from .budget import Progress
 
         bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
+        characteristics = {a.id: summarise(plan, a, bound) for a in plan.analyses}
     else:
         bound = bind.bind(plan, table if table is not None else read.read(plan, data_path))
-        fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
+        # The fits run LAPACK on one thread and the summaries are numpy passes that release
+        # the GIL, so the summaries take the second core while the tiers are fitted.
+        with ThreadPoolExecutor(max_workers=1) as pool:
+            summaries = [pool.submit(summarise, plan, a, bound) for a in plan.analyses]
+            fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
+            characteristics = {a.id: s.result() for a, s in zip(plan.analyses, summaries)}
     verdicts, assumptions = decide.decide(plan, fits)
-    return Analysed(plan, bound, fits, verdicts, assumptions)
+    return Analysed(plan, bound, fits, verdicts, assumptions, characteristics)
 
 
 def data_path_for(plan: Plan, override: str | Path | None) -> Path:

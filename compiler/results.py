@@ -30,10 +30,14 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
 
     ``analysed`` is a pipeline.Analysed, ``stamp`` a pipeline.Stamp, ``lock`` a
     lock.LockState (None when the run was not pre-registered). ``summarise(plan, analysis,
-    bound)`` gives the sample characteristics (compiler.characteristics by default).
+    bound)`` gives the sample characteristics; by default they are the ones ``analysed``
+    carries (the pipeline computes them beside the fits), else compiler.characteristics'.
     """
     from .canonical import plan_digest
 
+    if summarise is None and analysed.characteristics is not None:
+        def summarise(plan, analysis, bound, found=analysed.characteristics):
+            return found[analysis.id]
     if summarise is None:
         from .characteristics import summarise
     plan, bound = analysed.plan, analysed.bound
