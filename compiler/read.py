@@ -5,9 +5,13 @@ implies: identifiers and categoricals as text (so `007` stays `007`), continuous
 binary variables as float64 with NaN for missing. Text stays out of Python objects: an
 identifier column is kept as arrow strings (``bound.TextColumn``), a categorical column as
 int32 codes into its distinct values (``bound.CodedColumn``); numbers are copied into numpy a
-parsed block at a time. The sha256 of the file's bytes is taken in the same pass. A file that cannot be read stops the run (exit 3) with a problem naming the file
-and, for a ragged row, the line; values that are not numbers in a numeric column are kept for
-the data contract (``Table.unparsed``) so that bind reports them with every other finding.
+parsed block at a time. A CSV is parsed by pyarrow's threads straight from its path while a
+second thread takes the sha256 of the file's bytes; its identity (size, modification time,
+inode) is compared before and after, so the digest is of the bytes parsed, and a file that
+changed stops the run. A file that cannot be read stops the run (exit 3) with a problem
+naming the file and, for a ragged row, the line; values that are not numbers in a numeric
+column are kept for the data contract (``Table.unparsed``) so that bind reports them with
+every other finding.
 
 CSV/TSV and Parquet are read with pyarrow, SAS transport (xpt) and Stata (dta) with pandas.
 """
@@ -103,9 +107,10 @@ def data_format(plan: Plan, path: Path) -> str:
 class _HashingReader:
     """A binary file that hashes the bytes as they are read: one pass gives parse and digest.
 
-    pyarrow pulls blocks through ``read`` on its I/O thread; hashlib releases the GIL on large
-    buffers, so hashing overlaps with parsing. The header peeked first is replayed. With
-    ``hashing=False`` it only replays the header (a streamed run's later passes).
+    A streamed run's passes (compiler/batches.py) read through it: pyarrow pulls blocks
+    through ``read`` on its I/O thread, and hashlib releases the GIL on large buffers, so
+    hashing overlaps with parsing. The header peeked first is replayed. With ``hashing=False``
+    it only replays the header (the in-memory read's header, a streamed run's later passes).
     """
 
     def __init__(self, raw, hashing: bool = True):
@@ -166,29 +171,70 @@ def _read_delimited(plan: Plan, path: Path, fmt: str):
 
 
 def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool):
+    """Parse by path, so pyarrow's threads read the file without calling back into Python,
+    while a second thread hashes the same file; the file's identity (size, modification time,
+    inode) is checked around both, so the digest is of the bytes parsed."""
     import pyarrow.csv as pacsv
 
     delimiter = "\t" if fmt == "tsv" else ","
+    before = _identity(path)
     with path.open("rb") as raw:
-        source = _HashingReader(raw)
-        header = _header(source.peek_record(), delimiter, path)
-        present = _present(plan, header)
-        text = pa.string()
-        types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
-                 else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
-                 for v in plan.variables if v.name in present}
-        # include_columns=[] would mean every column; read one as text to count the rows
-        include = list(present) or header[:1]
+        header = _header(_HashingReader(raw, hashing=False).peek_record(), delimiter, path)
+    present = _present(plan, header)
+    text = pa.string()
+    types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
+             else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
+             for v in plan.variables if v.name in present}
+    # include_columns=[] would mean every column; read one as text to count the rows
+    include = list(present) or header[:1]
+    with _Digest(path) as digest:
         table = pacsv.read_csv(
-            source, memory_pool=_parse_pool(),
+            str(path), memory_pool=_parse_pool(),
             read_options=pacsv.ReadOptions(use_threads=True, block_size=BLOCK),
             parse_options=pacsv.ParseOptions(delimiter=delimiter),
             convert_options=pacsv.ConvertOptions(
                 include_columns=include, column_types=types or {include[0]: text},
                 null_values=list(plan.data.missing), strings_can_be_null=True))
-        digest = source.hexdigest()
+    if _identity(path) != before:
+        raise _stop(f"data file {path} changed while it was being read; read it again once "
+                    "nothing is writing to it", "data-changed")
     arrays = {name: table.column(name) for name in present}
-    return header, arrays, table.num_rows, digest, source.size
+    return header, arrays, table.num_rows, digest.hexdigest, before[0]
+
+
+def _identity(path: Path) -> tuple[int, int, int, int]:
+    info = path.stat()
+    return info.st_size, info.st_mtime_ns, info.st_ino, info.st_dev
+
+
+class _Digest:
+    """The sha256 of a file, taken on a thread while the caller parses it (file reads and
+    hashlib's update release the GIL on large buffers). ``hexdigest`` is set on exit."""
+
+    def __init__(self, path: Path):
+        self._path = path
+        self._error: BaseException | None = None
+        self.hexdigest = ""
+        self._thread = threading.Thread(target=self._run, name="prespec-sha256", daemon=True)
+
+    def _run(self) -> None:
+        try:
+            digest = hashlib.sha256()
+            with self._path.open("rb", buffering=0) as f:
+                while block := f.read(BLOCK):
+                    digest.update(block)
+            self.hexdigest = digest.hexdigest()
+        except BaseException as error:  # handed to the caller on exit
+            self._error = error
+
+    def __enter__(self) -> "_Digest":
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self._thread.join()
+        if self._error is not None and exc[0] is None:
+            raise self._error
 
 
 def _parse_pool() -> pa.MemoryPool:

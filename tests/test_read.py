@@ -72,6 +72,25 @@ def test_sha256_covers_a_file_larger_than_one_parse_block(tmp_path):
     assert table.sha256 == hashlib.sha256(path.read_bytes()).hexdigest()
 
 
+def test_a_file_that_changes_while_it_is_read_stops_the_run(tmp_path, monkeypatch):
+    # The parse and the digest read the file separately, so a change between them would give
+    # a digest of other bytes than those analysed: the file's identity is compared around both.
+    import compiler.read as module
+
+    path = _file(tmp_path, "d.csv", ROWS)
+    real = module._identity
+    calls = iter(range(100))
+
+    def shifting(p):
+        size, mtime, inode, device = real(p)
+        return size, mtime + next(calls), inode, device  # a new modification time each look
+
+    monkeypatch.setattr(module, "_identity", shifting)
+    stop = _stop(PLAN, path)
+    assert stop.problems[0].code == "data-changed"
+    assert str(path) in stop.problems[0].message
+
+
 def test_only_declared_columns_are_read_and_the_others_listed_as_unused(tmp_path):
     text = ROWS.replace("pid,", "note,pid,", 1).replace("\n0", "\nx,0").replace("\n1", "\ny,1")
     table = read(PLAN, _file(tmp_path, "d.csv", text))
