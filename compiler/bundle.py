@@ -31,6 +31,7 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
         progress=True):
     """The confirmatory run. Exit 4 unless the plan matches its lock (or ``unlocked``)."""
     from . import lock, seal
+    from .renderer import Renderer
     from .pipeline import Stamp, analyse, compile_plan, data_path_for
 
     plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
@@ -40,18 +41,21 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
     seal.refuse_existing(target)
     key = seal.load_signing_key(sign_key) if sign_key else None
     data_path = data_path_for(plan, data)
-    _say(progress, f"reading and fitting {data_path}")
-    analysed = analyse(plan, data_path, stream=stream, progress=progress)
-    stamp = Stamp(preregistered=state is not None)
-    why = "this run did not use a lock (--unlocked)"
-    return _finish(analysed, stamp, plan_bytes=plan_bytes, state=state, stub_reason=why,
-                   target=target, key=key, settings=None, progress=progress)
+    with Renderer.for_data(data_path) as renderer:
+        _say(progress, f"reading and fitting {data_path}")
+        analysed = analyse(plan, data_path, stream=stream, progress=progress)
+        stamp = Stamp(preregistered=state is not None)
+        why = "this run did not use a lock (--unlocked)"
+        return _finish(analysed, stamp, plan_bytes=plan_bytes, state=state, stub_reason=why,
+                       target=target, key=key, settings=None, progress=progress,
+                       renderer=renderer)
 
 
 def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None,
              effect=0.0, progress=True):
     """A rehearsal on synthetic data, or on real data with one column scrambled."""
     from . import seal
+    from .renderer import Renderer
     from .pipeline import Stamp, analyse, compile_plan, data_path_for
     from .problems import Exit, Problem, Stop
 
@@ -75,13 +79,14 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
         data_path = None
         note = f"synthetic data, {count} rows, seed {seed}" + (
             f", exposure effect {effect!r}" if effect else "")
-    _say(progress, f"rehearsing on {note}")
-    table = rehearsal_table(plan, settings, data_path)
-    analysed = analyse(plan, data_path, table=table)
-    stamp = Stamp(preregistered=False, rehearsal=True, note=note)
-    return _finish(analysed, stamp, plan_bytes=plan_bytes, state=None,
-                   stub_reason="a rehearsal never uses a lock", target=target, key=None,
-                   settings=settings, progress=progress)
+    with Renderer.for_data(data_path) as renderer:
+        _say(progress, f"rehearsing on {note}")
+        table = rehearsal_table(plan, settings, data_path)
+        analysed = analyse(plan, data_path, table=table)
+        stamp = Stamp(preregistered=False, rehearsal=True, note=note)
+        return _finish(analysed, stamp, plan_bytes=plan_bytes, state=None,
+                       stub_reason="a rehearsal never uses a lock", target=target, key=None,
+                       settings=settings, progress=progress, renderer=renderer)
 
 
 def rehearsal_table(plan, settings: dict, data_path):
@@ -116,19 +121,23 @@ def report_epoch(state) -> int:
     return 0
 
 
-def render(document: dict, results_bytes: bytes, fits, epoch: int) -> tuple[bytes, bytes]:
-    """report.html and report.pdf, each rendered once from the results document."""
-    from .render import render_html, render_pdf
+def render(document: dict, results_bytes: bytes, fits, epoch: int,
+           renderer=None) -> tuple[bytes, bytes]:
+    """report.html and report.pdf, each rendered once from the results document, by
+    ``renderer`` (compiler/renderer.py) or here."""
+    from .renderer import render_in_process
 
     plots = {fit.analysis: {"fitted": fit.diagnostics.fitted,
                             "residuals": fit.diagnostics.residuals}
              for fit in fits if fit.diagnostics is not None}
-    html = render_html(document, plots, results_sha256=sha256_hex(results_bytes))
-    return html.encode("utf-8"), render_pdf(html, epoch=epoch)
+    digest = sha256_hex(results_bytes)
+    if renderer is None:
+        return render_in_process(document, plots, digest, epoch)
+    return renderer.render(document, plots, digest, epoch)
 
 
 def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, settings,
-            progress):
+            progress, renderer=None):
     from . import results, seal
     from .cli import Report
     from .lock import now_utc
@@ -137,7 +146,7 @@ def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, set
                                 settings=settings)
     results_bytes = results.to_bytes(document)
     _say(progress, "rendering the report")
-    html, pdf = render(document, results_bytes, analysed.fits, report_epoch(state))
+    html, pdf = render(document, results_bytes, analysed.fits, report_epoch(state), renderer)
     lock_bytes = state.data if state is not None else canonical_bytes(
         {"format": LOCK_STUB_FORMAT, "locked": False, "stamp": stamp.banner, "why": stub_reason})
     files = {"results.json": results_bytes, "report.html": html, "report.pdf": pdf,

@@ -28,8 +28,10 @@ STREAMED = ("not computed: a streamed run never holds the data's columns, so the
 EMPTY = "no analysed rows in this group"
 
 
-def summarise(plan: Plan, analysis: Analysis, bound: BoundData) -> dict:
-    """The characteristics of ``analysis``' sample (layout: see the module docstring)."""
+def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict:
+    """The characteristics of ``analysis``' sample (layout: see the module docstring).
+    ``map`` runs the per-variable summaries (an executor's map spreads them over threads;
+    each is numpy passes that release the GIL); the order of the result does not depend on it."""
     table = bound.table
     exposure = plan.variable(analysis.exposure)
     grouped = exposure.kind in ("categorical", "binary")
@@ -50,13 +52,13 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData) -> dict:
     def per_group(fn) -> tuple[list, dict]:
         return [fn(m) for m in group_masks], fn(everyone)
 
-    variables = []
-    for name in names:
+    def summary(name: str) -> dict:
         variable = plan.variable(name)
         absent = missing_mask(variable, table)
+        values = table.columns[variable.name]
 
-        def stats(group: np.ndarray, variable=variable, absent=absent) -> dict:
-            out = _describe(variable, table.columns[variable.name][analysed & group])
+        def stats(group: np.ndarray) -> dict:
+            out = _describe(variable, values[analysed & group])
             out["missing"] = int(np.count_nonzero(population & group & absent))
             return out
 
@@ -64,10 +66,10 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData) -> dict:
         role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
                 else "offset" if name == analysis.offset
                 else "cluster" if name == analysis.covariance.cluster else "covariate")
-        variables.append({"name": name, "role": role, "kind": variable.kind,
-                          "label": variable.label, "unit": variable.unit,
-                          "groups": groups, "overall": overall})
+        return {"name": name, "role": role, "kind": variable.kind, "label": variable.label,
+                "unit": variable.unit, "groups": groups, "overall": overall}
 
+    variables = list(map(summary, names))
     exposure_absent = missing_mask(exposure, table)
     return {
         **base, "missing_basis": "population",
@@ -112,11 +114,13 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
     if n == 0:
         return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min", "max")),
                 "reason": EMPTY}
-    q1, median, q3 = np.quantile(values, [0.25, 0.5, 0.75])
     out = {"n": n, "mean": finite_or_none(np.mean(values)),
            "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None,
-           "median": finite_or_none(median), "q1": finite_or_none(q1), "q3": finite_or_none(q3),
            "min": finite_or_none(np.min(values)), "max": finite_or_none(np.max(values))}
+    # last, because it reorders: ``values`` is this group's own copy (boolean indexing), so
+    # the partial sort may work in it instead of in another copy
+    q1, median, q3 = np.quantile(values, [0.25, 0.5, 0.75], overwrite_input=True)
+    out.update(median=finite_or_none(median), q1=finite_or_none(q1), q3=finite_or_none(q3))
     if n < 2:
         out["reason"] = "a standard deviation needs at least two rows"
     return out

@@ -59,25 +59,27 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
     (compiler/stream.py); ``progress`` shows a progress line on a terminal."""
     from concurrent.futures import ThreadPoolExecutor
 
-    from . import bind, decide, design, fit, read, stream as streamed
-    from .characteristics import summarise
+    from . import bind, characteristics, decide, design, fit, read, stream as streamed
 
     fmt = None if table is not None else streamed.streaming_format(plan, data_path, bool(stream))
     if fmt is not None:
         from .budget import Progress
 
         bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
-        characteristics = {a.id: summarise(plan, a, bound) for a in plan.analyses}
+        summaries = {a.id: characteristics.summarise(plan, a, bound) for a in plan.analyses}
     else:
         bound = bind.bind(plan, table if table is not None else read.read(plan, data_path))
         # The fits run LAPACK on one thread and the summaries are numpy passes that release
-        # the GIL, so the summaries take the second core while the tiers are fitted.
-        with ThreadPoolExecutor(max_workers=1) as pool:
-            summaries = [pool.submit(summarise, plan, a, bound) for a in plan.analyses]
+        # the GIL, so the summaries take the second core while the tiers are fitted, and
+        # both cores once they are (one thread leads each analysis' summary, two summarise
+        # its variables).
+        with ThreadPoolExecutor(2) as columns, ThreadPoolExecutor(1) as pool:
+            pending = {a.id: pool.submit(characteristics.summarise, plan, a, bound, columns.map)
+                       for a in plan.analyses}
             fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
-            characteristics = {a.id: s.result() for a, s in zip(plan.analyses, summaries)}
+            summaries = {name: future.result() for name, future in pending.items()}
     verdicts, assumptions = decide.decide(plan, fits)
-    return Analysed(plan, bound, fits, verdicts, assumptions, characteristics)
+    return Analysed(plan, bound, fits, verdicts, assumptions, summaries)
 
 
 def data_path_for(plan: Plan, override: str | Path | None) -> Path:

@@ -38,7 +38,8 @@ def edit(path: Path, old: str, new: str) -> None:
     path.write_text(text.replace(old, new, 1), encoding="utf-8")
 
 
-def quick_render(document: dict, results_bytes: bytes, fits, epoch: int) -> tuple[bytes, bytes]:
+def quick_render(document: dict, results_bytes: bytes, fits, epoch: int,
+                 renderer=None) -> tuple[bytes, bytes]:
     """A deterministic stand-in for report.html and report.pdf."""
     html = canonical_bytes({"report of": sha256_hex(results_bytes), "epoch": epoch})
     return html, b"%PDF-stand-in " + html

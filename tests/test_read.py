@@ -270,3 +270,19 @@ def test_every_format_gives_the_sample_of_the_csv(tmp_path, suffix):
     np.testing.assert_array_equal(got.rows, expected.rows)
     np.testing.assert_array_equal(got.row_ids, expected.row_ids)
     assert got.flow == expected.flow
+
+
+@pytest.mark.parametrize("offset", [0, 1, 7, 8, 13])
+def test_float_blocks_match_pyarrows_own_conversion_at_any_offset(offset):
+    # reference: pyarrow's Array.to_numpy, which read avoids because it imports pandas
+    import pyarrow as pa
+
+    from compiler.read import _float_block
+
+    rng = np.random.default_rng(3)
+    values = [None if rng.random() < 0.3 else float(i) for i in range(1000)]
+    block = pa.array(values, type=pa.float64()).slice(offset, 500)
+    out = np.empty(len(block))
+    valid = _float_block(block, out)
+    np.testing.assert_array_equal(out, block.to_numpy(zero_copy_only=False))
+    np.testing.assert_array_equal(valid, block.is_valid().to_numpy(zero_copy_only=False))

@@ -1,0 +1,121 @@
+"""The render pass in a child process that loads the report's libraries while the run reads.
+
+jinja2, matplotlib and WeasyPrint take more than a second to import, all of it before the
+first plot or page. A run on a large file starts this child first; it imports them on the
+other core while the parent reads, binds and fits, then waits for one job on its stdin:
+the results document, the report tier's residuals and the PDF's epoch. It renders with the
+same functions the parent would (compiler/render.py), so the bytes are the same either way
+(tests/test_renderer.py), and writes the HTML and PDF back on its stdout.
+
+The child is worth its start-up only when there is reading and fitting to hide the imports
+behind and the libraries are not loaded already: ``for_data`` decides. If the child cannot
+start, dies or fails, the parent renders in its own process, so a failure is reported from
+where it happened, with the usual one-line message (or the traceback under --debug).
+
+The channel is pickle over the child's own pipes: both ends are this program.
+"""
+
+from __future__ import annotations
+
+import os
+import pickle
+import subprocess
+import sys
+from pathlib import Path
+
+# Below this size of data file the read and the fits take less than the child's start-up
+# and imports, so nothing would be hidden (bench/run.py measures the large case).
+WORTHWHILE_BYTES = 32 << 20
+RENDER_MODULES = ("jinja2", "markupsafe", "matplotlib.figure",
+                  "matplotlib.backends.backend_svg", "weasyprint")
+
+
+def render_in_process(document: dict, plots: dict, results_sha256: str,
+                      epoch: int) -> tuple[bytes, bytes]:
+    """report.html and report.pdf, rendered here."""
+    from .render import render_html, render_pdf
+
+    html = render_html(document, plots, results_sha256=results_sha256)
+    return html.encode("utf-8"), render_pdf(html, epoch=epoch)
+
+
+class Renderer:
+    """Renders the report here, or in a child started at construction (``child=True``)."""
+
+    def __init__(self, child: bool):
+        self._process = _start() if child else None
+
+    @classmethod
+    def for_data(cls, data_path) -> "Renderer":
+        """A child when the data file is large and the render libraries are not loaded yet."""
+        try:
+            large = data_path is not None and Path(data_path).stat().st_size >= WORTHWHILE_BYTES
+        except OSError:
+            large = False
+        return cls(child=large and "weasyprint" not in sys.modules)
+
+    def render(self, document: dict, plots: dict, results_sha256: str,
+               epoch: int) -> tuple[bytes, bytes]:
+        process, self._process = self._process, None
+        if process is not None:
+            done = _ask(process, (document, plots, results_sha256, epoch))
+            if done is not None:
+                return done
+        return render_in_process(document, plots, results_sha256, epoch)
+
+    def close(self) -> None:
+        """Stop a child that was never asked (the run stopped before its report)."""
+        process, self._process = self._process, None
+        if process is not None:
+            process.kill()
+            process.communicate()
+
+    def __enter__(self) -> "Renderer":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def _start() -> subprocess.Popen | None:
+    package_root = str(Path(__file__).resolve().parent.parent)
+    env = dict(os.environ)
+    env["PYTHONPATH"] = os.pathsep.join(p for p in (package_root, env.get("PYTHONPATH")) if p)
+    try:
+        return subprocess.Popen([sys.executable, "-m", "compiler.renderer"],
+                                stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                stderr=subprocess.DEVNULL, env=env)
+    except OSError:
+        return None
+
+
+def _ask(process: subprocess.Popen, job: tuple) -> tuple[bytes, bytes] | None:
+    """The child's (html, pdf), or None when it failed in any way."""
+    try:
+        out, _ = process.communicate(pickle.dumps(job, protocol=pickle.HIGHEST_PROTOCOL))
+        answer = pickle.loads(out) if process.returncode == 0 and out else None
+    except (OSError, EOFError, pickle.UnpicklingError):
+        process.kill()
+        process.communicate()
+        return None
+    return answer if isinstance(answer, tuple) and len(answer) == 2 else None
+
+
+def _serve() -> int:
+    """The child: import, then render the one job on stdin."""
+    import importlib
+
+    for name in RENDER_MODULES:
+        importlib.import_module(name)
+    job = sys.stdin.buffer.read()
+    if not job:
+        return 0  # the parent stopped before its report
+    document, plots, results_sha256, epoch = pickle.loads(job)
+    answer = render_in_process(document, plots, results_sha256, epoch)
+    sys.stdout.buffer.write(pickle.dumps(answer, protocol=pickle.HIGHEST_PROTOCOL))
+    sys.stdout.buffer.flush()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(_serve())

@@ -1,0 +1,63 @@
+"""The render child (compiler/renderer.py) gives the report the parent would render itself.
+
+A run on a large file renders in a child process that imported the report's libraries while
+the parent read and fitted; the bundle must not depend on which process rendered it. These
+tests run the demo study through both paths and compare the bytes, and check that a child
+that fails or is never asked leaves no process behind.
+"""
+
+from __future__ import annotations
+
+import bundlekit
+import pytest
+
+from compiler import bundle, renderer
+from compiler.pipeline import Stamp, analyse, compile_plan
+
+
+@pytest.fixture(scope="module")
+def job(tmp_path_factory):
+    plan_path, data = bundlekit.study(tmp_path_factory.mktemp("study"))
+    plan = compile_plan(plan_path)
+    analysed = analyse(plan, data)
+    document = bundle.results_document(analysed, Stamp(preregistered=False),
+                                       plan_bytes=plan_path.read_bytes(), state=None,
+                                       settings=None)
+    plots = {f.analysis: {"fitted": f.diagnostics.fitted, "residuals": f.diagnostics.residuals}
+             for f in analysed.fits if f.diagnostics is not None}
+    return document, plots, "ab" * 32, 1_700_000_000
+
+
+def test_the_child_renders_the_same_bytes_as_the_parent(job):
+    with renderer.Renderer(child=True) as child:
+        assert child._process is not None  # a child really was started
+        from_child = child.render(*job)
+    assert from_child == renderer.render_in_process(*job)
+
+
+def test_a_child_that_fails_leaves_the_parent_to_render(job, monkeypatch):
+    # the child runs this module's _serve; a job it cannot unpickle makes it exit non-zero
+    with renderer.Renderer(child=True) as child:
+        monkeypatch.setattr(renderer.pickle, "dumps", lambda *a, **k: b"not a pickle")
+        html, pdf = child.render(*job)
+    monkeypatch.undo()
+    assert (html, pdf) == renderer.render_in_process(*job)
+
+
+def test_a_child_never_asked_is_stopped(job):
+    child = renderer.Renderer(child=True)
+    process = child._process
+    child.close()
+    assert process.returncode is not None  # reaped: no orphan, no zombie
+
+
+def test_small_files_and_loaded_libraries_render_in_process(tmp_path, monkeypatch):
+    small = tmp_path / "d.csv"
+    small.write_text("a\n1\n")
+    assert renderer.Renderer.for_data(small)._process is None
+    assert renderer.Renderer.for_data(None)._process is None
+    big = tmp_path / "big.csv"
+    with big.open("wb") as f:
+        f.truncate(renderer.WORTHWHILE_BYTES)
+    monkeypatch.setitem(__import__("sys").modules, "weasyprint", object())
+    assert renderer.Renderer.for_data(big)._process is None  # already loaded here
