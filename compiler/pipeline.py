@@ -10,6 +10,7 @@ imported inside the passes that need them, so that `prespec check` starts fast.
 
 from __future__ import annotations
 
+import threading
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -68,6 +69,10 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
         bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
         summaries = {a.id: characteristics.summarise(plan, a, bound) for a in plan.analyses}
     else:
+        if table is None:
+            # pyarrow parses outside the GIL and leaves part of a core idle: load the fitting
+            # libraries meanwhile, so the first fit does not stop to import them
+            threading.Thread(target=_import_fitting, name="prespec-import", daemon=True).start()
         bound = bind.bind(plan, table if table is not None else read.read(plan, data_path))
         # The fits run LAPACK on one thread and the summaries are numpy passes that release
         # the GIL, so the summaries take the second core while the tiers are fitted, and
@@ -80,6 +85,17 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
             summaries = {name: future.result() for name, future in pending.items()}
     verdicts, assumptions = decide.decide(plan, fits)
     return Analysed(plan, bound, fits, verdicts, assumptions, summaries)
+
+
+def _import_fitting() -> None:
+    import importlib
+
+    for name in ("scipy.linalg", "scipy.special", "threadpoolctl", "compiler.fit",
+                 "compiler.characteristics", "compiler.decide"):
+        try:
+            importlib.import_module(name)
+        except Exception:  # noqa: BLE001 - the pass that needs it imports it again and says why
+            return
 
 
 def data_path_for(plan: Plan, override: str | Path | None) -> Path:
