@@ -86,6 +86,7 @@ def read(plan: Plan, path: str | Path) -> Table:
             columns[variable.name] = CodedColumn(*codes[variable.name])
         else:  # identifiers stay arrow strings: no Python object per row
             columns[variable.name] = TextColumn(identifiers(arrays.pop(variable.name), missing))
+    _release_parse_memory()
     unused = tuple(name for name in header if name not in declared and name not in columns)
     return Table(path=str(path), format=fmt, sha256=digest, size_bytes=size, rows_read=rows,
                  columns=columns, unused_columns=unused, unparsed=unparsed, codes=codes)
@@ -249,6 +250,14 @@ def _parse_pool() -> pa.MemoryPool:
         return pool
     except NotImplementedError:
         return pa.default_memory_pool()
+
+
+def _release_parse_memory() -> None:
+    """Hand the parse's freed pages back to the system: even with decay 0, jemalloc kept
+    about 120 MiB of the bench file's parse resident after every block was freed."""
+    pool = _parse_pool()
+    if hasattr(pool, "release_unused"):  # pyarrow ≥ 16
+        pool.release_unused()
 
 
 def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
