@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 import sys
 from dataclasses import dataclass, field
 from typing import Callable, Sequence
@@ -165,13 +164,6 @@ def _emit(report: Report, as_json: bool, command: str) -> None:
         print(p.format(), file=sys.stderr if p.is_error else sys.stdout)
     for line in report.lines:
         print(line)
-
-
-# numpy advises the kernel to back large arrays with transparent hugepages; where the kernel
-# answers that advice by compacting memory on each fault (defrag=madvise, a common default),
-# the first touch of a new array is about four times slower (bench/fit_bench.py --pages), and
-# a run touches each of its large arrays only a few times. A user's own setting wins.
-os.environ.setdefault("NUMPY_MADVISE_HUGEPAGE", "0")
 
 
 def main(argv: Sequence[str] | None = None) -> int:
