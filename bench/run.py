@@ -61,10 +61,9 @@ def tree(root):
     while todo:
         pid = todo.pop()
         found.append(pid)
-        try:
-            for task in os.listdir(f"/proc/{pid}/task"):
-                with open(f"/proc/{pid}/task/{task}/children") as f:
-                    todo.extend(int(c) for c in f.read().split())
+        try:  # the main thread's children: prespec and Python start processes from it
+            with open(f"/proc/{pid}/task/{pid}/children") as f:
+                todo.extend(int(c) for c in f.read().split())
         except OSError:
             pass
     return found
