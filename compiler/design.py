@@ -41,28 +41,34 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
     take (log of a non-positive value, a non-positive offset)."""
     sample = bound.sample(analysis.id)
     builder = _Builder(plan, bound.table.columns, sample.rows, sample.row_ids, analysis.id)
-
-    # The matrix is allocated once at its final width and filled a column at a time, so the
-    # peak holds the design and one column, never a list of every column besides the matrix.
     added = tier_terms(analysis)
     width = 1 + sum(len(term_labels(plan, term)) for terms in added for term in terms)
-    # F order: each column is filled in one contiguous pass, and a block of rows is still one
-    # contiguous run per column when the QR takes it
-    x = np.empty((len(sample.rows), width), dtype=np.float64, order="F")
-    x[:, 0] = 1.0
     labels: list[str] = [INTERCEPT]
     column_term: list[str] = [INTERCEPT]
     widths: list[int] = []
     exposure_columns: tuple[int, ...] = ()
     for index, terms in enumerate(added):
         for term in terms:
-            for label, values in builder.term_columns(term):
-                x[:, len(labels)] = values
+            for label in term_labels(plan, term):
                 labels.append(label)
                 column_term.append(term.label)
         widths.append(len(labels))
         if index == 0:
             exposure_columns = tuple(range(1, len(labels)))
+
+    if _rows_on_demand(analysis, added):
+        # every row analysed: positions are the rows themselves, and a block is a slice
+        # (views of the columns); otherwise the block's positions pick the rows
+        every = len(sample.rows) == bound.table.rows_read
+
+        def block(rows: slice) -> np.ndarray:
+            part = _Builder(plan, bound.table.columns, rows if every else sample.rows[rows],
+                            None, analysis.id)
+            return _fill(part, added, width)
+
+        x = DesignRows(block, len(sample.rows), width)
+    else:
+        x = _fill(builder, added, width)
 
     y = builder.outcome(plan.variable(analysis.outcome))
     offset = None
@@ -79,6 +85,81 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
         tier_width=tuple(widths), exposure_columns=exposure_columns, cluster=cluster,
         row_ids=sample.row_ids,
     )
+
+
+def _rows_on_demand(analysis: Analysis, added: list[tuple[Term, ...]]) -> bool:
+    """Gaussian designs whose terms cannot fail are never held whole: every pass over them
+    (the QR, the fitted values, the leverages, a sandwich) takes row blocks, each built from
+    the bound columns when asked. A log term must see every value before the fit (it stops
+    the run on a non-positive one), and a GLM hands the whole matrix to statsmodels."""
+    return analysis.family == "gaussian" and not any(
+        term.form == "log" for terms in added for term in terms)
+
+
+def _fill(builder: "_Builder", added: list[tuple[Term, ...]], width: int) -> np.ndarray:
+    """The design's rows from ``builder``, every column, in F order: each column is filled
+    in one contiguous pass, and a block of rows is still one run per column."""
+    x = np.empty((builder.count, width), dtype=np.float64, order="F")
+    x[:, 0] = 1.0
+    j = 1
+    for terms in added:
+        for term in terms:
+            for _label, values in builder.term_columns(term):
+                x[:, j] = values
+                j += 1
+    return x
+
+
+class DesignRows:
+    """A design matrix that is never held: ``block(rows)`` builds the rows of a slice.
+
+    Stands in for the n × p array where the fit reads it: ``shape``, a block of rows
+    (``x[a:b]``, ``x[a:b, :w]``), the leading columns (``x[:, :w]``, still on demand),
+    ``x[:, :w] @ beta`` (a block at a time) and ``np.asarray(x)`` (the whole matrix, for a
+    caller that needs it, such as an error message's least squares). A block is built the same
+    way whichever rows it holds, so every pass sees the same numbers.
+    """
+
+    dtype = np.dtype(np.float64)
+    ndim = 2
+
+    def __init__(self, block, n: int, p: int, columns: int | None = None):
+        self._block = block
+        self._p = p
+        self.shape = (n, p if columns is None else columns)
+
+    def __len__(self) -> int:
+        return self.shape[0]
+
+    def __getitem__(self, key):
+        rows, columns = key if isinstance(key, tuple) else (key, slice(None))
+        whole = isinstance(rows, slice) and rows == slice(None)
+        prefix = isinstance(columns, slice) and columns.start in (None, 0) \
+            and columns.step in (None, 1)
+        if whole and prefix:  # the leading columns, still on demand
+            width = min(self.shape[1], columns.stop if columns.stop is not None else self._p)
+            return DesignRows(self._block, self.shape[0], self._p, width)
+        if isinstance(rows, slice) and rows.step in (None, 1) and not whole:
+            start, stop, _ = rows.indices(self.shape[0])
+            return self._block(slice(start, stop))[:, :self.shape[1]][:, columns]
+        return np.asarray(self)[key]
+
+    def __matmul__(self, beta: np.ndarray) -> np.ndarray:
+        from .qr import row_chunks
+
+        beta = np.asarray(beta, dtype=np.float64)
+        out = np.empty((self.shape[0], *beta.shape[1:]))
+        for rows in row_chunks(self.shape[0]):
+            out[rows] = self[rows] @ beta
+        return out
+
+    def __array__(self, dtype=None, copy=None):
+        from .qr import row_chunks
+
+        out = np.empty(self.shape, dtype=np.float64, order="F")
+        for rows in row_chunks(self.shape[0]):
+            out[rows] = self[rows]
+        return out if dtype is None else out.astype(dtype, copy=False)
 
 
 def tier_terms(analysis: Analysis) -> list[tuple[Term, ...]]:
@@ -112,6 +193,10 @@ def natural_spline_columns(x: np.ndarray, knots: tuple[float, ...]) -> list[np.n
     return columns
 
 
+def rows_read(columns: dict) -> int:
+    return len(next(iter(columns.values()))) if columns else 0
+
+
 def cluster_codes(values: np.ndarray) -> np.ndarray:
     """Integer codes 0 … G − 1 of the cluster values, in sorted order of the values."""
     if values.dtype == object:
@@ -127,7 +212,9 @@ class _Builder:
                  analysis_id: str):
         self.plan = plan
         self.columns = columns
-        self.rows = rows
+        self.rows = rows  # positions into the table's columns, or a slice of them
+        self.count = len(range(*rows.indices(rows_read(columns)))) if isinstance(rows, slice) \
+            else len(rows)
         self.row_ids = row_ids
         self.analysis_id = analysis_id
         self.problems: list[Problem] = []
@@ -138,7 +225,7 @@ class _Builder:
             column = self.columns[name]
             # rows are ascending, distinct positions: as many as the column has means all of
             # them, and the column itself serves without a copy
-            whole = len(self.rows) == len(column)
+            whole = not isinstance(self.rows, slice) and len(self.rows) == len(column)
             self._cache[name] = column if whole else column[self.rows]
         return self._cache[name]
 
@@ -163,7 +250,7 @@ class _Builder:
             return [(labels[0], np.log(self.positive(name, labels[0], self.numeric(name))))]
         if term.form == "spline":
             return list(zip(labels, natural_spline_columns(self.numeric(name), term.knots)))
-        combined: list[tuple[str, np.ndarray]] = [("", np.ones(len(self.rows)))]
+        combined: list[tuple[str, np.ndarray]] = [("", np.ones(self.count))]
         for factor in term.variables:
             sides = self.variable_columns(self.plan.variable(factor))
             combined = [(f"{a}*{b}" if a else b, va * vb)

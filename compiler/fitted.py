@@ -17,7 +17,7 @@ class Design:
     """
 
     analysis: str
-    x: np.ndarray  # n × p float64, C- or F-ordered
+    x: np.ndarray  # n × p float64 (F order), or design.DesignRows: rows built when asked
     y: np.ndarray  # n float64
     offset: np.ndarray | None  # log of the offset variable, or None
     labels: tuple[str, ...]  # design column labels, e.g. "(intercept)", "arm=walking", "age^2"

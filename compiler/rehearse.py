@@ -151,12 +151,13 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
     built = design.design(plan, analysis, _bound_for(analysis, columns, complete))
     exposure = set(built.exposure_columns)
     with_exposure = {t.label for t in analysis.tiers[-1].terms if analysis.exposure in t.variables}
-    centred = built.x - built.x.mean(axis=0)
+    x = np.asarray(built.x)  # the whole matrix (a gaussian design builds its rows on demand)
+    centred = x - x.mean(axis=0)
     spread = centred.std(axis=0)
     signs = synthesize.stream(seed, synthesize.COEFFICIENTS, analysis.id).choice(
-        [-1.0, 1.0], size=built.x.shape[1])
-    beta = np.zeros(built.x.shape[1])
-    for j in range(1, built.x.shape[1]):
+        [-1.0, 1.0], size=x.shape[1])
+    beta = np.zeros(x.shape[1])
+    for j in range(1, x.shape[1]):
         if j in exposure:
             beta[j] = effect
         elif built.column_term[j] not in with_exposure and spread[j] > 0:

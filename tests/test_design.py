@@ -149,3 +149,47 @@ def test_only_the_sample_rows_enter_the_design():
     np.testing.assert_array_equal(d.y, columns["y"][rows])
     np.testing.assert_array_equal(d.x[:, 2], columns["age"][rows])
     assert list(d.row_ids) == ["1", "3", "6", "10"]
+
+
+@pytest.mark.parametrize("share", [1.0, 0.8])  # every row (blocks are slices), or a subset
+def test_a_gaussian_design_built_on_demand_equals_the_matrix_built_whole(monkeypatch, share):
+    # The gaussian design hands out row blocks built when asked (design.DesignRows). Every
+    # block, the whole matrix, the fitted values and the fit itself must equal those of the
+    # matrix built whole (the GLM path), on a population subset spanning several QR chunks.
+    import compiler.design as module
+    from compiler.fit import fit
+    from compiler.qr import CHUNK_ROWS
+
+    rng = np.random.default_rng(11)
+    n = 3 * CHUNK_ROWS + 123
+    columns = {"y": rng.normal(size=n),
+               "arm": rng.choice(np.asarray(["usual", "walking"], dtype=object), n),
+               "district": rng.choice(np.asarray(LEVELS, dtype=object), n),
+               "age": rng.uniform(20, 80, n)}
+    variables = [Variable("y", "continuous"),
+                 Variable("arm", "categorical", levels=("usual", "walking"), reference="usual"),
+                 Variable("district", "categorical", levels=LEVELS),
+                 Variable("age", "continuous")]
+    tiers = [("crude", []), ("base", ["district", {"power": "age", "degree": 2}]),
+             ("full", [{"spline": "age", "knots": [30, 50, 70]},
+                       {"product": ["district", "age"]}])]
+    analysis = fk.analysis("y", "arm", tiers, "gaussian")
+    plan = fk.plan(variables, [analysis])
+    rows = np.flatnonzero(rng.random(n) < share)  # share < 1: a population that skips rows
+    lazy = design(plan, analysis, fk.bound(columns, [analysis], rows=rows))
+    monkeypatch.setattr(module, "_rows_on_demand", lambda *_: False)
+    whole = design(plan, analysis, fk.bound(columns, [analysis], rows=rows))
+
+    assert isinstance(lazy.x, module.DesignRows) and isinstance(whole.x, np.ndarray)
+    assert lazy.x.shape == whole.x.shape
+    np.testing.assert_array_equal(np.asarray(lazy.x), whole.x)
+    for block in (slice(0, 10), slice(CHUNK_ROWS - 5, CHUNK_ROWS + 5), slice(len(rows) - 3, None)):
+        np.testing.assert_array_equal(lazy.x[block], whole.x[block])
+    np.testing.assert_array_equal(lazy.x[:, 3], whole.x[:, 3])
+    beta = rng.normal(size=4)
+    np.testing.assert_allclose(lazy.x[:, :4] @ beta, whole.x[:, :4] @ beta, rtol=1e-14)
+    by_rows, by_matrix = fit(plan, analysis, lazy), fit(plan, analysis, whole)
+    for a, b in zip(by_rows.tiers, by_matrix.tiers):
+        assert [c.estimate for c in a.coefficients] == [c.estimate for c in b.coefficients]
+        assert [c.std_error for c in a.coefficients] == [c.std_error for c in b.coefficients]
+        assert a.rss == b.rss
