@@ -60,10 +60,11 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
     (compiler/stream.py); ``progress`` shows a progress line on a terminal."""
     from concurrent.futures import ThreadPoolExecutor
 
-    from . import bind, characteristics, decide, design, fit, read, stream as streamed
+    from . import bind, read, stream as streamed
 
     fmt = None if table is not None else streamed.streaming_format(plan, data_path, bool(stream))
     if fmt is not None:
+        from . import characteristics
         from .budget import Progress
 
         bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
@@ -74,6 +75,8 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
             # libraries meanwhile, so the first fit does not stop to import them
             threading.Thread(target=_import_fitting, name="prespec-import", daemon=True).start()
         bound = bind.bind(plan, table if table is not None else read.read(plan, data_path))
+        from . import characteristics, design, fit  # here: loaded meanwhile by _import_fitting
+
         # The fits run LAPACK on one thread and the summaries are numpy passes that release
         # the GIL, so the summaries take the second core while the tiers are fitted, and
         # both cores once they are (one thread leads each analysis' summary, two summarise
@@ -83,6 +86,8 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
                        for a in plan.analyses}
             fits = tuple(fit.fit(plan, a, design.design(plan, a, bound)) for a in plan.analyses)
             summaries = {name: future.result() for name, future in pending.items()}
+    from . import decide
+
     verdicts, assumptions = decide.decide(plan, fits)
     return Analysed(plan, bound, fits, verdicts, assumptions, summaries)
 
@@ -90,7 +95,8 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
 def _import_fitting() -> None:
     import importlib
 
-    for name in ("scipy.linalg", "scipy.special", "threadpoolctl", "compiler.fit",
+    for name in ("scipy.linalg", "scipy.special", "threadpoolctl", "compiler.design",
+                 "compiler.fit", "compiler.fit_gaussian", "compiler.diagnostics",
                  "compiler.characteristics", "compiler.decide"):
         try:
             importlib.import_module(name)
