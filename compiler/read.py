@@ -74,6 +74,7 @@ def read(plan: Plan, path: str | Path) -> Table:
         if variable.is_numeric:
             if arrays[variable.name].type == pa.float64():  # parsed as numbers: the usual case
                 columns[variable.name], tally = _floats(arrays.pop(variable.name))
+                _release_parse_memory()  # this column's blocks, before the next is copied
             else:
                 columns[variable.name], tally = _released(arrays, variable.name, missing, numbers)
             if tally.count:
@@ -254,7 +255,9 @@ def _parse_pool() -> pa.MemoryPool:
 
 def _release_parse_memory() -> None:
     """Hand the parse's freed pages back to the system: even with decay 0, jemalloc kept
-    about 120 MiB of the bench file's parse resident after every block was freed."""
+    about 120 MiB of the bench file's parse resident after every block was freed. Called
+    after each column's copy, so the columns' numpy copies replace the parse instead of
+    adding to it (peak of the bench's read 431 → 353 MiB)."""
     pool = _parse_pool()
     if hasattr(pool, "release_unused"):  # pyarrow ≥ 16
         pool.release_unused()
