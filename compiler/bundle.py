@@ -43,12 +43,12 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
     data_path = data_path_for(plan, data)
     with Renderer.for_data(data_path) as renderer:
         _say(progress, f"reading and fitting {data_path}")
-        analysed = analyse(plan, data_path, stream=stream, progress=progress)
         stamp = Stamp(preregistered=state is not None)
         why = "this run did not use a lock (--unlocked)"
-        return _finish(analysed, stamp, plan_bytes=plan_bytes, state=state, stub_reason=why,
-                       target=target, key=key, settings=None, progress=progress,
-                       renderer=renderer)
+        # no local holds the analysis: _finish lets the data go before the report (see there)
+        return _finish(analyse(plan, data_path, stream=stream, progress=progress), stamp,
+                       plan_bytes=plan_bytes, state=state, stub_reason=why, target=target,
+                       key=key, settings=None, progress=progress, renderer=renderer)
 
 
 def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None,
@@ -81,10 +81,9 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
             f", exposure effect {effect!r}" if effect else "")
     with Renderer.for_data(data_path) as renderer:
         _say(progress, f"rehearsing on {note}")
-        table = rehearsal_table(plan, settings, data_path)
-        analysed = analyse(plan, data_path, table=table)
         stamp = Stamp(preregistered=False, rehearsal=True, note=note)
-        return _finish(analysed, stamp, plan_bytes=plan_bytes, state=None,
+        return _finish(analyse(plan, data_path, table=rehearsal_table(plan, settings, data_path)),
+                       stamp, plan_bytes=plan_bytes, state=None,
                        stub_reason="a rehearsal never uses a lock", target=target, key=None,
                        settings=settings, progress=progress, renderer=renderer)
 
@@ -144,9 +143,13 @@ def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, set
 
     document = results_document(analysed, stamp, plan_bytes=plan_bytes, state=state,
                                 settings=settings)
+    fits = analysed.fits
+    # The report needs the document and the fits' residuals only: with the last reference to
+    # the analysis gone, the data's columns are freed before the report is rendered.
+    del analysed
     results_bytes = results.to_bytes(document)
     _say(progress, "rendering the report")
-    html, pdf = render(document, results_bytes, analysed.fits, report_epoch(state), renderer)
+    html, pdf = render(document, results_bytes, fits, report_epoch(state), renderer)
     lock_bytes = state.data if state is not None else canonical_bytes(
         {"format": LOCK_STUB_FORMAT, "locked": False, "stamp": stamp.banner, "why": stub_reason})
     files = {"results.json": results_bytes, "report.html": html, "report.pdf": pdf,

@@ -50,10 +50,12 @@ def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray | None = 
 
 def _influential(cooks: np.ndarray, row_ids) -> tuple[Influential, ...]:
     """The largest Cook's distances; ties go to the earlier row."""
-    finite = np.flatnonzero(np.isfinite(cooks))
-    if len(finite) > TOP_INFLUENTIAL:  # keep every row tied with the fifth largest
-        fifth = np.partition(cooks[finite], len(finite) - TOP_INFLUENTIAL)[-TOP_INFLUENTIAL]
-        finite = finite[cooks[finite] >= fifth]
+    finite = np.isfinite(cooks)
+    values = cooks if finite.all() else cooks[finite]
+    if len(values) > TOP_INFLUENTIAL:  # keep every row tied with the fifth largest
+        fifth = np.partition(values, len(values) - TOP_INFLUENTIAL)[-TOP_INFLUENTIAL]
+        finite &= cooks >= fifth
+    finite = np.flatnonzero(finite)
     order = finite[np.lexsort((finite, -cooks[finite]))][:TOP_INFLUENTIAL]
     ids = row_ids if row_ids is not None else np.arange(1, len(cooks) + 1)
     return tuple(Influential(str(ids[i]), float(cooks[i])) for i in order)
@@ -104,24 +106,37 @@ def gaussian_diagnostics(design: Design, tier_name: str, r: np.ndarray, width: i
                            "are undefined")
     squares = residuals ** 2
     h, projected = _leverage_pass(x, rinv, squares=squares)
+    bp, bp_p = breusch_pagan(x.shape[0], width, squares, projected)
+    del squares
     reasons = []
+    # n-long arrays are made in place where the formula allows: on a large sample each is
+    # 8 bytes a row, and these are the fit's largest temporaries
+    #   studentized = residuals / sqrt(σ² (1 − h)),  cooks = studentized² h / (p (1 − h))
+    scale = np.subtract(1.0, h)
     with np.errstate(divide="ignore", invalid="ignore"):
-        studentized = residuals / np.sqrt(sigma2 * (1.0 - h))
-        cooks = studentized ** 2 * h / (width * (1.0 - h))
+        scale *= sigma2
+        np.sqrt(scale, out=scale)
+        studentized = residuals / scale
+        cooks = np.square(studentized, out=scale)
+        cooks *= h
+        cooks /= width * (1.0 - h)
     keep = np.isfinite(studentized) & (h < 1.0 - 1e-10)
-    if not np.all(keep):
+    every = bool(np.all(keep))
+    if not every:
         reasons.append(f"{int(np.sum(~keep))} rows with leverage 1 have no studentized residual "
                        "or Cook's distance and are left out of both")
-        cooks = np.where(keep, cooks, np.nan)
+        cooks[~keep] = np.nan
+    del h
     test, statistic, p_value, why = _normality(residuals)
     if why:
         reasons.append(why)
-    bp, bp_p = breusch_pagan(x.shape[0], width, squares, projected)
     return Diagnostics(
         tier=tier_name, vif=vif, normality_test=test, normality_statistic=statistic,
         normality_p=p_value, breusch_pagan_statistic=bp, breusch_pagan_p=bp_p,
-        influential=_influential(cooks, design.row_ids), fitted=fitted[keep],
-        residuals=studentized[keep], reason="; ".join(reasons) or None)
+        influential=_influential(cooks, design.row_ids),
+        fitted=fitted if every else fitted[keep],
+        residuals=studentized if every else studentized[keep],
+        reason="; ".join(reasons) or None)
 
 
 def glm_diagnostics(design: Design, family: str, tier_name: str, r_unweighted: np.ndarray,
