@@ -119,3 +119,27 @@ def test_command_line_errors_exit_2_with_one_line(argv, capsys):
     assert leaving.value.code == 2
     err = capsys.readouterr().err
     assert len(err.strip().splitlines()) == 1 and err.startswith("prespec: error: ")
+
+
+def test_the_executable_flushes_its_output_and_keeps_every_exit_code(tmp_path):
+    # `prespec` (compiler.cli.command) ends its process with os._exit after main returns:
+    # what main printed must still arrive whole through a pipe, with main's exit code.
+    import subprocess
+    import sys
+
+    def prespec(*args):
+        return subprocess.run([sys.executable, "-m", "compiler", *args], capture_output=True,
+                              text=True)
+
+    ok = prespec("--json", "check", DEMO)
+    assert ok.returncode == 0
+    assert json.loads(ok.stdout)["exit_code"] == 0
+    broken = tmp_path / "broken.yaml"
+    broken.write_text(BROKEN)
+    bad = prespec("check", str(broken))
+    assert bad.returncode == 2
+    assert f"{broken}:15:15: error: unknown variable `agee`" in bad.stderr
+    version = prespec("--version")
+    assert (version.returncode, version.stdout.strip()) == (0, f"prespec {__version__}")
+    usage = prespec("no-such-command")
+    assert usage.returncode == 2 and "invalid choice" in usage.stderr
