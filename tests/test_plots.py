@@ -73,3 +73,31 @@ def test_the_residual_plots_repeat_their_bytes():
     assert plots.normal_quantiles(residuals, key="q", residual_label="residual") == first
     assert plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual") \
         == plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual")
+
+
+def test_the_normal_quantiles_agree_with_scipy_at_blom_positions():
+    # The Q–Q plot takes its quantiles from statistics.NormalDist (so the report's process
+    # need not import scipy); reference: scipy.special.ndtri, the function scipy.stats.norm.ppf
+    # calls. Both implement Wichura's AS 241.
+    from statistics import NormalDist
+
+    from scipy.special import ndtri
+
+    n = 100_000
+    positions = (np.arange(1, n + 1) - 0.375) / (n + 0.25)
+    ours = np.array([NormalDist().inv_cdf(p) for p in positions])
+    np.testing.assert_allclose(ours, ndtri(positions), rtol=1e-13, atol=1e-15)
+
+
+def test_the_report_renders_without_importing_scipy(tmp_path):
+    # the render child's import budget (compiler/renderer.py): plots and pages need no scipy
+    import subprocess
+    import sys
+
+    code = ("import sys, numpy as np; from compiler import plots, renderer; "
+            "renderer._warm_up(); r = np.random.default_rng(1).normal(size=20000); "
+            "plots.normal_quantiles(r, key='q', residual_label='r'); "
+            "print('scipy' in sys.modules)")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True)
+    assert done.stdout.strip() == "False"
