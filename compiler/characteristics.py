@@ -49,16 +49,22 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     levels, group_masks = _groups(exposure, table) if grouped else ((), ())
     everyone = np.ones(table.rows_read, bool)
 
+    # Each group's analysed rows as positions, found once for every variable: picking values
+    # by position is about ten times faster than by a boolean mask whose pattern is random
+    # (every branch mispredicted), and gives the same values in the same order.
+    picks = [np.flatnonzero(analysed & m) for m in (*group_masks, everyone)]
+
     def per_group(fn) -> tuple[list, dict]:
-        return [fn(m) for m in group_masks], fn(everyone)
+        results = [fn(m, rows) for m, rows in zip((*group_masks, everyone), picks)]
+        return results[:-1], results[-1]
 
     def summary(name: str) -> dict:
         variable = plan.variable(name)
         absent = missing_mask(variable, table)
         values = table.columns[variable.name]
 
-        def stats(group: np.ndarray) -> dict:
-            out = _describe(variable, values[analysed & group])
+        def stats(group: np.ndarray, rows: np.ndarray) -> dict:
+            out = _describe(variable, values[rows])
             out["missing"] = int(np.count_nonzero(population & group & absent))
             return out
 
@@ -117,8 +123,8 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
     out = {"n": n, "mean": finite_or_none(np.mean(values)),
            "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None,
            "min": finite_or_none(np.min(values)), "max": finite_or_none(np.max(values))}
-    # last, because it reorders: ``values`` is this group's own copy (boolean indexing), so
-    # the partial sort may work in it instead of in another copy
+    # last, because it reorders: ``values`` is this group's own copy (picked by position),
+    # so the partial sort may work in it instead of in another copy
     q1, median, q3 = np.quantile(values, [0.25, 0.5, 0.75], overwrite_input=True)
     out.update(median=finite_or_none(median), q1=finite_or_none(q1), q3=finite_or_none(q3))
     if n < 2:

@@ -136,8 +136,8 @@ def _serve_and_leave() -> None:
 def _warm_up() -> None:
     """Pay the costs of first use that do not depend on the job while the parent still
     reads and fits: the templates' compilation, matplotlib's font manager and first figure,
-    scipy.special for the normal quantiles, WeasyPrint's style sheets and the report's fonts.
-    About 0.4 s of the report's time on the bench; what is drawn here is thrown away, and
+    WeasyPrint's style sheets and the report's fonts. About 0.3 s of the report's time on the
+    bench; what is drawn here is thrown away, and
     each real plot and page is made from its own inputs alone (tests/test_renderer.py)."""
     import numpy as np
 
