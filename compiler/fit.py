@@ -118,7 +118,7 @@ def _check_rank(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -
         variable = terms[term].variables[0] if term in terms else analysis.outcome
         problems.append(Problem(
             f"analysis {analysis.id}, tier {design.tier_names[tier]}: design column "
-            f"`{design.labels[j]}` (term {term}) {_combination(design, j, aliased)} in the "
+            f"`{design.labels[j]}` (term {term}) {_combination(design, r, j, aliased)} in the "
             f"{n} analysed rows, so its coefficient cannot be estimated (aliased), in this "
             f"tier and every later one",
             column=variable, code="aliased-column",
@@ -128,14 +128,21 @@ def _check_rank(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -
     raise Stop(problems, Exit.DATA_CONTRACT)
 
 
-def _combination(design: Design, j: int, aliased: list[int]) -> str:
-    """How column j depends on the columns before it, in words."""
-    column = design.x[:, j]
+def _combination(design: Design, r: np.ndarray, j: int, aliased: list[int]) -> str:
+    """How column j depends on the columns before it, in words, from the R factor alone.
+
+    X = QR with Q orthonormal, so ‖x_i‖ = ‖R[:, i]‖ and the least squares of x_j on earlier
+    columns is that of R[:, j] on their columns of R: a (p + 1)-row problem, the same for a
+    streamed run (which never holds X) and an in-memory one."""
+    p = design.x.shape[1]
+    r = r[:p, :p]
+    column = r[: j + 1, j]
     if not np.any(column):
         return "is zero in every row (e.g. a level that never occurs)"
     earlier = [i for i in range(j) if i not in aliased]
-    coef, *_ = np.linalg.lstsq(design.x[:, earlier], column, rcond=None)
-    weight = np.abs(coef) * np.linalg.norm(design.x[:, earlier], axis=0)
+    basis = r[: j + 1, earlier]
+    coef, *_ = np.linalg.lstsq(basis, column, rcond=None)
+    weight = np.abs(coef) * np.linalg.norm(basis, axis=0)
     order = [earlier[i] for i in np.argsort(-weight) if weight[i] > 1e-8 * weight.max()]
     named = ", ".join(f"`{design.labels[i]}`" for i in order[:_NAMED])
     more = f" and {len(order) - _NAMED} more" if len(order) > _NAMED else ""

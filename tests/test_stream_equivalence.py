@@ -233,3 +233,24 @@ def test_prespec_run_stream_writes_the_in_memory_results(tmp_path):
         # a streamed run holds no columns, so it has no sample characteristics (stated there)
         analysis.pop("characteristics")
     numbers_agree(in_memory, streamed, "results")
+
+
+def test_streamed_aliasing_is_explained_as_in_memory(tmp_path, small_batches):
+    # dose = age / 2 + 3 in every row: the dose column is a combination of the intercept and
+    # age. The explanation comes from R, which both paths have (a streamed run never holds X).
+    csv = simulated_csv(tmp_path / "trial.csv")
+    lines = csv.read_text().splitlines()
+    for k in range(1, len(lines)):
+        fields = lines[k].split(",")
+        fields[3] = repr(float(fields[2]) / 2 + 3)
+        lines[k] = ",".join(fields)
+    csv.write_text("\n".join(lines) + "\n")
+    plan = bench_plan(csv)
+    with pytest.raises(Stop) as in_memory:
+        analyse(plan, csv, stream=False)
+    with pytest.raises(Stop) as streamed:
+        analyse(plan, csv, stream=True)
+    assert [p.code for p in in_memory.value.problems] == ["aliased-column"]
+    message = in_memory.value.problems[0].message
+    assert "`dose`" in message and "is a linear combination of" in message and "`age`" in message
+    assert streamed.value.problems == in_memory.value.problems
