@@ -65,11 +65,7 @@ def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,
         found = {}
         for c in kinds:
             if c.kind == "cluster":
-                meat = sums[k].T @ sums[k]
-                if groups > 1 and n > w:
-                    meat = meat * (groups / (groups - 1.0)) * ((n - 1.0) / (n - w))
-                else:
-                    meat = meat * np.nan  # one cluster: no between-cluster information
+                meat = cluster_meat(sums[k], n, w, groups)
             else:
                 meat = meats[k][c.label]
                 if c.kind == "HC1":
@@ -78,6 +74,24 @@ def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,
                 found[c.label] = r @ meat @ r.T
         out.append(found)
     return out
+
+
+def cluster_meat(sums: np.ndarray, n: int, width: int, groups: int) -> np.ndarray:
+    """The clustered sandwich's meat from each cluster's summed scores (one row a cluster),
+    with the small-sample factor G/(G − 1) · (n − 1)/(n − p) (statsmodels' default)."""
+    meat = sums.T @ sums
+    if groups > 1 and n > width:
+        return meat * (groups / (groups - 1.0)) * ((n - 1.0) / (n - width))
+    return meat * np.nan  # one cluster: no between-cluster information
+
+
+def cluster_sums(x, inverse, widths, residuals, cluster, sums, groups, root_w=None) -> None:
+    """Add the rows' scores to their clusters' sums (``sums[k]``: groups × widths[k]), for a
+    pass that sees the rows a block at a time (a streamed run)."""
+    kinds = [Covariance("cluster")]
+    with np.errstate(divide="ignore", invalid="ignore"), one_blas_thread(x.shape[0]):
+        _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, False,
+                    [{} for _ in widths], sums, groups)
 
 
 def _accumulate(x, inverse, widths, residuals, kinds, cluster, root_w, needs_leverage,

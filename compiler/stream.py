@@ -324,6 +324,7 @@ def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str, kept: n
 
     def one_pass():
         yielded = False
+        clusters = ClusterCodes()
         # pass 1 stopped the run on any text in a numeric column: numbers parse here
         for offset, table in batch_tables(plan, path, fmt, FileFacts(str(path), fmt),
                                           hashing=False):
@@ -336,6 +337,30 @@ def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str, kept: n
                 ids = rows + offset + 1
             yielded = True
             sample = Sample(analysis.id, rows, ids, _NO_FLOW)
-            yield design(plan, analysis, BoundData(table, (sample,), ()))
+            batch = design(plan, analysis, BoundData(table, (sample,), ()))
+            if batch.cluster is not None:  # the batch's own codes → the file's
+                batch = replace(batch, cluster=clusters.of(
+                    table.columns[analysis.covariance.cluster][rows]))
+            yield batch
 
     return one_pass
+
+
+class ClusterCodes:
+    """Cluster codes that hold across batches: each value gets the next code when first met,
+    batch by batch in file order (sorted within a batch), so every pass over the file gives
+    every row the same code. ``len`` is the number of clusters met so far."""
+
+    def __init__(self):
+        self._codes: dict = {}
+
+    def __len__(self) -> int:
+        return len(self._codes)
+
+    def of(self, values) -> np.ndarray:
+        if getattr(values, "dtype", None) == object:  # text or coded: compare as text
+            values = np.asarray([str(v) for v in values], dtype=object)
+        uniques, inverse = np.unique(np.asarray(values), return_inverse=True)
+        local = np.fromiter((self._codes.setdefault(u, len(self._codes))
+                             for u in uniques.tolist()), np.int64, len(uniques))
+        return local[inverse.reshape(-1)]

@@ -10,8 +10,8 @@ batch of rows at a time, in file order. The passes are:
 
 Each is a per-batch reduction with a combine step. The numbers then go through the same
 code as an in-memory fit (compiler/fit_gaussian.py, fit_glm.py, fit.py), so both paths
-agree to rounding. Not computed in a streamed run: clustered covariance (the cluster codes
-of a batch are not those of the whole data), which is left None.
+agree to rounding. A clustered covariance sums each cluster's scores over the batches
+(codes that hold across batches come from stream.ClusterCodes), then finishes as in memory.
 """
 
 from __future__ import annotations
@@ -23,7 +23,7 @@ import numpy as np
 
 from . import diagnostics as memory_diagnostics
 from . import fit as memory_fit
-from .covariance import distinct_covariances, sandwich_covariances
+from .covariance import cluster_meat, cluster_sums, distinct_covariances, sandwich_covariances
 from .fitted import AnalysisFit, Design, Diagnostics, Influential
 from .inference import finite_or_none
 from .irls import Moments, fit_tiers, moments_combine, moments_map
@@ -114,13 +114,63 @@ def _show(progress, text: str) -> None:
 
 def _robust_kinds(covariances: list[Covariance]) -> list[Covariance]:
     """The per-row sums to accumulate: HC1 is HC0 scaled by the whole data's n / (n − p), so
-    it is accumulated as HC0; clustered covariance is not streamed."""
+    it is accumulated as HC0; a clustered covariance is summed per cluster (ClusterTotals)."""
     kinds = []
     for c in covariances:
         kind = Covariance("HC0") if c.kind == "HC1" else c
         if c.kind not in ("classical", "cluster") and kind not in kinds:
             kinds.append(kind)
     return kinds
+
+
+def _clustered(covariances: list[Covariance]) -> bool:
+    return any(c.kind == "cluster" for c in covariances)
+
+
+class ClusterTotals:
+    """Each cluster's summed scores, per tier, over the batches of a residual pass: the
+    per-partition part of the clustered sandwich (covariance.cluster_sums), its combine a
+    sum of arrays whose rows are clusters. Rows grow as new clusters appear."""
+
+    def __init__(self, widths):
+        self.widths = list(widths)
+        self.sums = [np.zeros((0, w)) for w in self.widths]
+        self.clusters = 0
+
+    def add(self, tiers, x, inverse, residuals, codes, root_w=None) -> None:
+        """Add one batch's scores for ``tiers`` (their residuals in the same order)."""
+        tiers = list(tiers)
+        found = int(codes.max()) + 1 if len(codes) else 0
+        self.clusters = max(self.clusters, found)
+        capacity = self.sums[0].shape[0]
+        if capacity < found:  # room for the clusters met first in this batch, doubling
+            capacity = max(found, 2 * capacity)
+            self.sums = [np.vstack([s, np.zeros((capacity - len(s), s.shape[1]))])
+                         for s in self.sums]
+        top = max(self.widths[k] for k in tiers)
+        cluster_sums(x[:, :top], inverse[:top, :top], [self.widths[k] for k in tiers],
+                     residuals, codes, [self.sums[k] for k in tiers], capacity, root_w)
+
+    def finish(self, sandwiches, covariances, inverses, n: int) -> list[dict]:
+        """``sandwiches`` (or empty ones) with each tier's clustered covariance added."""
+        out = [dict(found) for found in sandwiches] if sandwiches else [{} for _ in self.widths]
+        for c in covariances:
+            if c.kind != "cluster":
+                continue
+            for k, (w, inverse) in enumerate(zip(self.widths, inverses)):
+                if inverse is None:
+                    continue
+                r = inverse[:w, :w]
+                meat = cluster_meat(self.sums[k][:self.clusters], n, w, self.clusters)
+                with np.errstate(all="ignore"):
+                    out[k][c.label] = r @ meat @ r.T
+        return out
+
+    def header(self, header: Design) -> Design:
+        """The header with a stand-in cluster column whose largest code gives the number of
+        clusters (the reference df of a clustered t): a broadcast view, no rows held."""
+        n = header.x.shape[0]
+        return replace(header, cluster=np.broadcast_to(np.int64(self.clusters - 1), (n,)))
 
 
 def _finish_sandwiches(totals: list[dict], covariances, n: int, widths) -> list[dict]:
@@ -153,6 +203,7 @@ def _gaussian(analysis, passes, first: FirstPass, covariances, report, progress)
     rinv = classical[-1].rinv
     kinds = _robust_kinds(covariances)
     totals = [{} for _ in widths]
+    clustered = ClusterTotals(widths) if _clustered(covariances) else None
     t = classical[report]
     residual_pass = _GaussianReport(header, t, n)
     seen = 0
@@ -160,10 +211,15 @@ def _gaussian(analysis, passes, first: FirstPass, covariances, report, progress)
         residuals = [design.y - design.x[:, :w] @ tier.beta for w, tier in zip(widths, classical)]
         if kinds:
             _add(totals, sandwich_covariances(design.x, rinv, widths, residuals, kinds, None))
+        if clustered is not None:
+            clustered.add(range(len(widths)), design.x, rinv, residuals, design.cluster)
         residual_pass.add(design, residuals[report], seen)
         seen += len(design.y)
         _show(progress, f"{analysis.id}: residuals, {seen:,} of {n:,} rows")
     sandwiches = _finish_sandwiches(totals, covariances, n, widths) if kinds else None
+    if clustered is not None:
+        sandwiches = clustered.finish(sandwiches, covariances, [rinv] * len(widths), n)
+        header = clustered.header(header)
     fitted = fit_gaussian(analysis, header, r, covariances, sandwiches)
     return fitted.tiers, fitted.comparisons, residual_pass.diagnostics(r, analysis.report_tier)
 
@@ -277,22 +333,28 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         notes.append([failure] if failure else [])
     kinds = _robust_kinds(covariances)
     totals = [{} for _ in widths]
+    clustered = ClusterTotals(widths) if _clustered(covariances) else None
     report_pass = _GlmReport(numbers[report], analysis.family, n)
     seen = 0
     for design in passes():
         for k, t in enumerate(numbers):
-            if t.failure is not None or not (kinds or k == report):
+            if t.failure is not None or not (kinds or clustered or k == report):
                 continue
             x = design.x[:, :t.width]
             mu, root_w, pearson = _glm_rows(analysis.family, x, design, t.beta)
             if kinds:
                 _add(totals[k:k + 1], sandwich_covariances(x, t.rinv, [t.width], [pearson],
                                                            kinds, None, root_w))
+            if clustered is not None:
+                clustered.add([k], x, t.rinv, [pearson], design.cluster, root_w)
             if k == report:
                 report_pass.add(design, x, mu, root_w, pearson, seen)
         seen += len(design.y)
         _show(progress, f"{analysis.id}: residuals, {seen:,} of {n:,} rows")
     sandwiches = _finish_sandwiches(totals, covariances, n, widths)
+    if clustered is not None:
+        sandwiches = clustered.finish(sandwiches, covariances, [t.rinv for t in numbers], n)
+        header = clustered.header(header)
     null_deviance = finite_or_none(null.deviance) if null.converged else None
     tiers = tuple(
         fit_glm._tier_fit(analysis, header, tier, k, numbers[k], covariances, None, notes[k],

@@ -254,3 +254,28 @@ def test_streamed_aliasing_is_explained_as_in_memory(tmp_path, small_batches):
     message = in_memory.value.problems[0].message
     assert "`dose`" in message and "is a linear combination of" in message and "`age`" in message
     assert streamed.value.problems == in_memory.value.problems
+
+
+def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches):
+    # Forty sites, each met in nearly every batch: a cluster's scores are summed across
+    # batches (stream.ClusterCodes gives a site the same code in every pass), then the
+    # sandwich is finished as in memory (covariance.cluster_meat). Every family, every tier.
+    csv = simulated_csv(tmp_path / "trial.csv")
+    lines = csv.read_text().splitlines()
+    rng = np.random.default_rng(8)
+    sites = [f"s{k:02d}" for k in range(40)]
+    lines = [lines[0] + ",site"] + [f"{line},{rng.choice(sites)}" for line in lines[1:]]
+    csv.write_text("\n".join(lines) + "\n")
+    plan = bench_plan(csv)
+    clustered = Covariance("cluster", "site")
+    plan = dataclasses.replace(
+        plan, variables=(*plan.variables, Variable("site", "categorical", levels=tuple(sites))),
+        analyses=tuple(dataclasses.replace(a, covariance=clustered) for a in plan.analyses),
+        assumptions=())
+    in_memory = analyse(plan, csv, stream=False)
+    streamed = analyse(plan, csv, stream=True)
+    numbers_agree(in_memory.fits, streamed.fits, "fits")
+    for fit in streamed.fits:
+        for tier in fit.tiers:
+            assert all(c.std_error is not None for c in tier.coefficients), (fit.analysis, tier.name)
+            assert [e.covariance for e in tier.exposure] == ["cluster(site)"]
