@@ -106,6 +106,16 @@ def numbers_agree(a, b, where="", skip=("fitted", "residuals")):
         assert a == b, where
 
 
+def both_stop(plan, csv) -> tuple[Stop, Stop]:
+    """The Stop of an in-memory run and that of a streamed run of ``plan`` on ``csv``."""
+    stops = []
+    for stream in (False, True):
+        with pytest.raises(Stop) as caught:
+            analyse(plan, csv, stream=stream)
+        stops.append(caught.value)
+    return stops[0], stops[1]
+
+
 @pytest.fixture
 def small_batches(monkeypatch):
     monkeypatch.setattr(batches, "BATCH_BYTES", 8192)  # pyarrow's smallest useful block
@@ -144,12 +154,9 @@ def test_streamed_contract_names_the_same_problems_as_in_memory(tmp_path, small_
     lines[2500] = ",".join(fields)
     csv.write_text("\n".join(lines) + "\n")
     plan = bench_plan(csv)
-    with pytest.raises(Stop) as in_memory:
-        analyse(plan, csv, stream=False)
-    with pytest.raises(Stop) as streamed:
-        analyse(plan, csv, stream=True)
-    assert streamed.value.problems == in_memory.value.problems
-    assert {p.code for p in streamed.value.problems} >= {"unknown-level", "duplicate-id",
+    in_memory, streamed = both_stop(plan, csv)
+    assert streamed.problems == in_memory.problems
+    assert {p.code for p in streamed.problems} >= {"unknown-level", "duplicate-id",
                                                          "out-of-range"}
 
 
@@ -161,11 +168,8 @@ def test_streamed_text_in_a_numeric_column_is_reported_as_in_memory(tmp_path, sm
     lines[2900] = ",".join(fields)
     csv.write_text("\n".join(lines) + "\n")
     plan = bench_plan(csv)
-    with pytest.raises(Stop) as in_memory:
-        analyse(plan, csv, stream=False)
-    with pytest.raises(Stop) as streamed:
-        analyse(plan, csv, stream=True)
-    assert streamed.value.problems == in_memory.value.problems
+    in_memory, streamed = both_stop(plan, csv)
+    assert streamed.problems == in_memory.problems
 
 
 PLAN_YAML = """\
@@ -246,14 +250,11 @@ def test_streamed_aliasing_is_explained_as_in_memory(tmp_path, small_batches):
         lines[k] = ",".join(fields)
     csv.write_text("\n".join(lines) + "\n")
     plan = bench_plan(csv)
-    with pytest.raises(Stop) as in_memory:
-        analyse(plan, csv, stream=False)
-    with pytest.raises(Stop) as streamed:
-        analyse(plan, csv, stream=True)
-    assert [p.code for p in in_memory.value.problems] == ["aliased-column"]
-    message = in_memory.value.problems[0].message
+    in_memory, streamed = both_stop(plan, csv)
+    assert [p.code for p in in_memory.problems] == ["aliased-column"]
+    message = in_memory.problems[0].message
     assert "`dose`" in message and "is a linear combination of" in message and "`age`" in message
-    assert streamed.value.problems == in_memory.value.problems
+    assert streamed.problems == in_memory.problems
 
 
 def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches):
