@@ -51,6 +51,8 @@ def batch_tables(plan: Plan, path: Path, fmt: str, facts: FileFacts, *,
     iterator is exhausted."""
     if fmt == "parquet":
         yield from _parquet(plan, path, facts, hashing)
+    elif fmt in ("xpt", "dta"):
+        yield from _transport_or_stata(plan, path, fmt, facts, hashing)
     else:
         yield from _delimited(plan, path, fmt, facts, numbers_as_text, hashing)
 
@@ -149,6 +151,57 @@ def _parquet(plan, path, facts, hashing):
     facts.size_bytes = path.stat().st_size
     if hashing:
         facts.sha256 = digest[0]
+
+
+def _transport_or_stata(plan, path, fmt, facts, hashing):
+    """SAS transport (xpt) and Stata (dta) files through pandas' chunked readers, a batch of
+    rows at a time, each converted as read.read converts the whole file; hashed on a thread
+    as Parquet is. A file without rows is read whole (it is small) for its header."""
+    digest: list[str] = []
+    thread = None
+    if hashing:
+        thread = threading.Thread(target=lambda: digest.append(_file_sha256(path)))
+        thread.start()
+    try:
+        offset, seen = 0, False
+        for frame in _frames(path, fmt):
+            frame, header = read.frame_header(plan, frame, fmt)
+            if not seen:
+                facts.header = header
+                facts.present = read._present(plan, header)
+                seen = True
+            yield offset, _table(plan, facts, _batch_of(frame, facts.present), offset, fmt)
+            offset += len(frame)
+        if not seen:
+            header, arrays, _rows, _digest, _size = read._read_pandas(plan, path, fmt)
+            facts.header, facts.present = header, read._present(plan, header)
+            batch = pa.record_batch([a.combine_chunks() for a in arrays.values()],
+                                    names=list(arrays))
+            yield 0, _table(plan, facts, batch, 0, fmt)
+        facts.rows = offset
+    finally:
+        if thread is not None:
+            thread.join()
+    facts.size_bytes = path.stat().st_size
+    if hashing:
+        facts.sha256 = digest[0]
+
+
+def _frames(path: Path, fmt: str):
+    import pandas as pd
+
+    rows = _gather_rows()
+    if fmt == "xpt":
+        reader = pd.read_sas(str(path), format="xport", encoding="utf-8", chunksize=rows)
+    else:
+        reader = pd.read_stata(str(path), preserve_dtypes=False, chunksize=rows)
+    with reader:
+        yield from reader
+
+
+def _batch_of(frame, names: list[str]) -> pa.RecordBatch:
+    return pa.record_batch([read._arrow_of(frame[n]).combine_chunks() for n in names],
+                           names=list(names))
 
 
 def _file_sha256(path: Path) -> str:

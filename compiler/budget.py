@@ -79,15 +79,31 @@ def should_stream(plan: Plan, data_path: str, data_format: str, forced: bool) ->
     """Stream when forced, or when the in-memory estimate exceeds the budget."""
     if forced:
         return True
-    if data_format not in ("csv", "tsv", "parquet"):
-        return False  # the other formats have no batch reader; they are read whole
     if data_format == "parquet":
         import pyarrow.parquet as pq
 
         rows = pq.ParquetFile(data_path).metadata.num_rows
+    elif data_format in ("xpt", "dta"):
+        rows = _declared_rows(data_path, data_format)
     else:
         rows = estimated_rows(data_path)
     return in_memory_bytes(plan, rows) > memory_budget()
+
+
+def _declared_rows(data_path: str, data_format: str) -> int:
+    """The row count a SAS transport or Stata file's header gives (pandas reads the header
+    only); a file pandas cannot open counts as empty here, and read reports it."""
+    import pandas as pd
+
+    try:
+        if data_format == "xpt":
+            reader = pd.read_sas(data_path, format="xport", encoding="utf-8", iterator=True)
+        else:
+            reader = pd.read_stata(data_path, iterator=True)
+        with reader:
+            return int(reader.nobs)
+    except Exception:  # noqa: BLE001 - read.read names the problem with the file
+        return 0
 
 
 class Progress:

@@ -345,19 +345,27 @@ def _read_pandas(plan: Plan, path: Path, fmt: str):
             frame = pd.read_stata(io.BytesIO(data), preserve_dtypes=False)
     finally:
         hashing.join()
+    frame, header = frame_header(plan, frame, fmt)
+    present = _present(plan, header)
+    return header, {n: _arrow_of(frame[n]) for n in present}, len(frame), digest[0], len(data)
+
+
+def frame_header(plan: Plan, frame, fmt: str):
+    """(frame, header) of a SAS transport or Stata frame (or a batch of one) as the plan
+    names its columns."""
     header = [str(c) for c in frame.columns]
     if fmt == "xpt":
         # pandas reads some IBM-format zeros as 16**-65 (pandas-dev/pandas#50670): a zero mantissa
         # is zero whatever the exponent, and no study value is that tiny
         for name in frame.columns[frame.dtypes == np.float64]:
-            frame[name] = frame[name].mask(frame[name].abs() == 16.0 ** -65, 0.0)  # SAS names are case-insensitive and stored upper-case by many writers
+            frame[name] = frame[name].mask(frame[name].abs() == 16.0 ** -65, 0.0)
+        # SAS names are case-insensitive and stored upper-case by many writers
         by_upper = {n.upper(): n for n in header}
         rename = {by_upper[v.name.upper()]: v.name for v in plan.variables
                   if v.name not in header and v.name.upper() in by_upper}
         frame = frame.rename(columns=rename)
         header = [rename.get(n, n) for n in header]
-    present = _present(plan, header)
-    return header, {n: _arrow_of(frame[n]) for n in present}, len(frame), digest[0], len(data)
+    return frame, header
 
 
 def _arrow_of(series) -> pa.ChunkedArray:

@@ -36,8 +36,8 @@ def streaming_format(plan: Plan, data_path: str | Path, forced: bool) -> str | N
 
     path = Path(data_path)
     fmt = data_format(plan, path)
-    if fmt not in ("csv", "tsv", "parquet") or not path.is_file():
-        return None  # xpt and dta are read whole; a missing file is read.read's to report
+    if not path.is_file():
+        return None  # read.read reports it
     return fmt if should_stream(plan, str(path), fmt, forced) else None
 
 
@@ -130,7 +130,7 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
     problems = _findings(plan, meta, facts, columns, example_ids)
     samples = []
     for analysis in plan.analyses:
-        if analysis.id not in flows:
+        if analysis.id not in flows or not facts.rows:  # no rows: bind reports the file only
             continue
         sample = Sample(analysis.id, np.zeros(0, np.int64), np.zeros(0, object),
                         flows[analysis.id])
