@@ -25,6 +25,8 @@ from .population import holds, missing_mask
 QUARTILES = "linear interpolation between order statistics (numpy default, Hyndman–Fan 7)"
 STREAMED = ("not computed: a streamed run never holds the data's columns, so the sample "
             "is summarised by its flow only")
+NO_QUARTILES = ("not computed in a streamed run: exact quartiles need every value at once "
+                "(counts, means, SDs, minima and maxima are summed over the batches)")
 EMPTY = "no analysed rows in this group"
 
 
@@ -130,6 +132,122 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
     if n < 2:
         out["reason"] = "a standard deviation needs at least two rows"
     return out
+
+
+class StreamedSummary:
+    """``summarise`` for a streamed run, as a reduction over the batches of the bind pass.
+
+    Each batch adds its analysed rows' counts, sums of moments (merged as in
+    stream_diagnostics.CentralMoments), minima and maxima per group and variable, and its
+    missing counts in the population; ``result`` gives summarise's layout, with the medians
+    and quartiles None and NO_QUARTILES as the reason (they need every value at once).
+    """
+
+    def __init__(self, plan: Plan, analysis: Analysis):
+        exposure = plan.variable(analysis.exposure)
+        self.plan, self.analysis, self.exposure = plan, analysis, exposure
+        self.grouped = exposure.kind in ("categorical", "binary")
+        self.names = [n for n in analysis.variables_used
+                      if plan.variable(n).kind != "identifier"
+                      and not (self.grouped and n == exposure.name)]
+        self.levels = (("0", "1") if exposure.kind == "binary" else exposure.levels) \
+            if self.grouped else ()
+        width = len(self.levels) + 1  # the groups, then everyone
+        self.n = np.zeros(width, np.int64)
+        self.n_population = np.zeros(width, np.int64)
+        self.exposure_missing = 0
+        self.parts = {name: [_Part() for _ in range(width)] for name in self.names}
+
+    def add(self, table: Table, sample) -> None:
+        from .stream_diagnostics import CentralMoments
+
+        analysed = np.zeros(table.rows_read, bool)
+        analysed[sample.rows] = True
+        population = _population(self.plan, self.analysis, table)
+        masks = [*(_groups(self.exposure, table)[1] if self.grouped else ()),
+                 np.ones(table.rows_read, bool)]
+        picks = [np.flatnonzero(analysed & m) for m in masks]
+        self.n += [len(p) for p in picks]
+        self.n_population += [int(np.count_nonzero(population & m)) for m in masks]
+        self.exposure_missing += int(np.count_nonzero(
+            population & missing_mask(self.exposure, table)))
+        for name in self.names:
+            variable = self.plan.variable(name)
+            values = table.columns[name]
+            absent = missing_mask(variable, table)
+            for part, mask, rows in zip(self.parts[name], masks, picks):
+                part.missing += int(np.count_nonzero(population & mask & absent))
+                picked = values[rows]
+                if variable.kind == "categorical":
+                    part.count([np.count_nonzero(picked == level) for level in variable.levels])
+                elif variable.kind == "binary":
+                    part.count([np.count_nonzero(picked == 1.0)])
+                elif len(picked):
+                    part.moments = part.moments.merge(CentralMoments.of(picked))
+                    part.low = min(part.low, float(np.min(picked)))
+                    part.high = max(part.high, float(np.max(picked)))
+
+    def result(self) -> dict:
+        def described(variable: Variable, part: "_Part", n: int) -> dict:
+            if variable.kind == "categorical":
+                counts = [0] * len(variable.levels) if part.counts is None else part.counts
+                return {"n": n, "levels": [{"level": level, "count": int(c),
+                                            "share": _ratio(int(c), n)}
+                                           for level, c in zip(variable.levels, counts)],
+                        **({"reason": EMPTY} if n == 0 else {})}
+            if variable.kind == "binary":
+                ones = 0 if part.counts is None else int(part.counts[0])
+                return {"n": n, "count": ones, "share": _ratio(ones, n),
+                        **({"reason": EMPTY} if n == 0 else {})}
+            if n == 0:
+                return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min",
+                                                 "max")), "reason": EMPTY}
+            moments = part.moments
+            reasons = [NO_QUARTILES]
+            if n < 2:
+                reasons.insert(0, "a standard deviation needs at least two rows")
+            return {"n": n, "mean": finite_or_none(moments.mean),
+                    "sd": finite_or_none(np.sqrt(moments.m2 / (n - 1))) if n >= 2 else None,
+                    "min": finite_or_none(part.low), "max": finite_or_none(part.high),
+                    "median": None, "q1": None, "q3": None, "reason": "; ".join(reasons)}
+
+        analysis, exposure = self.analysis, self.exposure
+        variables = []
+        for name in self.names:
+            variable = self.plan.variable(name)
+            cells = [dict(described(variable, part, int(n)), missing=int(part.missing))
+                     for part, n in zip(self.parts[name], self.n)]
+            role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
+                    else "offset" if name == analysis.offset
+                    else "cluster" if name == analysis.covariance.cluster else "covariate")
+            variables.append({"name": name, "role": role, "kind": variable.kind,
+                              "label": variable.label, "unit": variable.unit,
+                              "groups": cells[:-1], "overall": cells[-1]})
+        return {
+            "exposure": exposure.name, "grouped": self.grouped, "quartiles": None,
+            "missing_basis": "population",
+            "groups": [{"level": level, "n": int(n), "n_population": int(m)}
+                       for level, n, m in zip(self.levels, self.n, self.n_population)],
+            "overall": {"n": int(self.n[-1]), "n_population": int(self.n_population[-1])},
+            "variables": variables, "exposure_missing": int(self.exposure_missing),
+            "reason": None,
+        }
+
+
+class _Part:
+    """One group's running sums for one variable."""
+
+    def __init__(self):
+        from .stream_diagnostics import CentralMoments
+
+        self.missing = 0
+        self.counts: np.ndarray | None = None  # per declared level (categorical) or of 1s
+        self.moments = CentralMoments()
+        self.low, self.high = np.inf, -np.inf
+
+    def count(self, found: list[int]) -> None:
+        found = np.asarray(found, np.int64)
+        self.counts = found if self.counts is None else self.counts + found
 
 
 def _ratio(count: int, n: int) -> float | None:

@@ -64,11 +64,9 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
 
     fmt = None if table is not None else streamed.streaming_format(plan, data_path, bool(stream))
     if fmt is not None:
-        from . import characteristics
         from .budget import Progress
 
-        bound, fits = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
-        summaries = {a.id: characteristics.summarise(plan, a, bound) for a in plan.analyses}
+        bound, fits, summaries = streamed.read_bind_fit(plan, data_path, fmt, Progress(progress))
     else:
         if table is None:
             # pyarrow parses outside the GIL and leaves part of a core idle: load the fitting

@@ -42,7 +42,8 @@ def streaming_format(plan: Plan, data_path: str | Path, forced: bool) -> str | N
 
 
 def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
-    """(BoundData, AnalysisFits) of a streamed run; Stop (exit 3) as read and bind would."""
+    """(BoundData, AnalysisFits, characteristics per analysis id) of a streamed run; Stop
+    (exit 3) as read and bind would."""
     from .stream_fit import fit_streamed
 
     import scipy.linalg  # noqa: F401  (loaded before the thread limit, so that it covers it)
@@ -51,13 +52,13 @@ def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
 
     path = Path(data_path)
     with one_blas_thread(path.stat().st_size):  # every row is at least a byte
-        bound, kept, firsts = _bind_pass(plan, path, fmt, progress)
+        bound, kept, firsts, summaries = _bind_pass(plan, path, fmt, progress)
         fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt, kept[a.id]),
                                   progress, firsts.get(a.id))
                      for a in plan.analyses)
     if progress is not None:
         progress.done()
-    return bound, fits
+    return bound, fits, summaries
 
 
 # --- pass 1: contract and flow -------------------------------------------------------------
@@ -83,8 +84,9 @@ def _bind_pass(plan: Plan, path: Path, fmt: str, progress):
 
 
 def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
-    """BoundData; per analysis, which rows are in its sample (one byte a row); and per
-    analysis its first fit pass (stream_fit.Decomposition), run alongside."""
+    """BoundData; per analysis, which rows are in its sample (one byte a row), its first fit
+    pass (stream_fit.Decomposition) and its characteristics (StreamedSummary), run alongside."""
+    from .characteristics import StreamedSummary
     from .design import design
     from .stream_fit import Decomposition
 
@@ -92,6 +94,7 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
     kept: dict[str, list] = {a.id: [] for a in plan.analyses}
     decompositions = {a.id: Decomposition() for a in plan.analyses}
     failed: set[str] = set()
+    summaries = {a.id: StreamedSummary(plan, a) for a in plan.analyses}
     columns: dict[str, _Column] = {}
     flows: dict[str, SampleFlow] = {}
     seen_levels: dict[str, dict] = {}
@@ -106,6 +109,7 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
         for analysis in plan.analyses:
             if all(n in table.columns for n in _needed(plan, analysis)):
                 sample = population.draw(plan, analysis, table, masks)
+                summaries[analysis.id].add(table, sample)
                 flows[analysis.id] = _merge_flow(flows.get(analysis.id), sample.flow)
                 _exposure_levels(plan, analysis, table, sample, seen_levels)
                 keep = np.zeros(table.rows_read, bool)
@@ -141,7 +145,8 @@ def _bind_once(plan, path, fmt, progress, *, numbers_as_text: bool):
     masks = {a: np.concatenate(k) if k else np.zeros(0, bool) for a, k in kept.items()}
     firsts = {a: d.result() for a, d in decompositions.items()
               if a not in failed and d.shape is not None}
-    return BoundData(meta, tuple(samples), warnings), masks, firsts
+    found = {a: summary.result() for a, summary in summaries.items()}
+    return BoundData(meta, tuple(samples), warnings), masks, firsts, found
 
 
 def _needed(plan: Plan, analysis: Analysis) -> tuple[str, ...]:

@@ -229,7 +229,10 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
         kind = v["kind"]
         if kind == "continuous":
             rows.append(_row("mean (SD)", cells, _mean_sd, notes))
-            rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+            if chars.get("quartiles") is not None:
+                rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+        elif kind == "count" and chars.get("quartiles") is None:  # streamed: no quartiles
+            rows.append(_row("mean (SD)", cells, _mean_sd, notes))
         elif kind == "count":
             rows.append(_row("median [Q1, Q3]", cells, _count_median_iqr, notes))
         elif kind == "binary":
@@ -249,9 +252,11 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
                     "flow lists the rows excluded for missing values.")
     grouping = (f"by {chars['exposure']}" if chars.get("grouped") else
                 f"overall ({chars.get('exposure')} is not grouped: it is not categorical)")
+    quartiles = (f"Quartiles by {chars['quartiles']}." if chars.get("quartiles") else
+                 "A streamed run sums counts, means, SDs, minima and maxima over the batches; "
+                 "it computes no medians or quartiles, which need every value at once.")
     return {"id": a["id"], "absent": None, "header": header, "rows": rows,
-            "caption": f"Analysed rows of {a['id']}, {grouping}. {missing_note} Quartiles by "
-                       f"{chars.get('quartiles') or 'linear interpolation'}.",
+            "caption": f"Analysed rows of {a['id']}, {grouping}. {missing_note} {quartiles}",
             "notes": notes.items}
 
 
