@@ -41,7 +41,7 @@ class Analysed:
     fits: tuple  # AnalysisFit per analysis, in plan order
     verdicts: tuple  # Verdict per decision, in plan order
     assumptions: tuple  # AssumptionOutcome per assumption
-    characteristics: dict | None = None  # analysis id → characteristics.summarise's summary
+    characteristics: dict | None = None  # analysis id → its summary (characteristics.py)
 
 
 def compile_plan(path: str | Path) -> Plan:
@@ -93,9 +93,9 @@ def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
 def _import_fitting() -> None:
     import importlib
 
-    for name in ("scipy.linalg", "scipy.special", "threadpoolctl", "compiler.design",
-                 "compiler.fit", "compiler.fit_gaussian", "compiler.diagnostics",
-                 "compiler.characteristics", "compiler.decide"):
+    ours = ("design", "fit", "fit_gaussian", "diagnostics", "characteristics", "decide")
+    for name in ("scipy.linalg", "scipy.special", "threadpoolctl",
+                 *(f"{__package__}.{module}" for module in ours)):
         try:
             importlib.import_module(name)
         except Exception:  # noqa: BLE001 - the pass that needs it imports it again and says why
