@@ -9,9 +9,8 @@ for those rows. Positions in a batch's tallies are offset to the whole file.
 
 from __future__ import annotations
 
-import hashlib
+import contextlib
 import os
-import threading
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Iterator
@@ -130,12 +129,7 @@ def _batch_bytes() -> int:
 def _parquet(plan, path, facts, hashing):
     import pyarrow.parquet as pq
 
-    digest: list[str] = []
-    thread = None
-    if hashing:
-        thread = threading.Thread(target=lambda: digest.append(_file_sha256(path)))
-        thread.start()
-    try:
+    with _hashed(path, facts, hashing):
         parquet = pq.ParquetFile(path)
         facts.header = parquet.schema_arrow.names
         facts.present = read._present(plan, facts.header)
@@ -145,24 +139,25 @@ def _parquet(plan, path, facts, hashing):
             yield offset, _table(plan, facts, batch, offset, "parquet")
             offset += batch.num_rows
         facts.rows = offset
-    finally:
-        if thread is not None:
-            thread.join()
+
+
+@contextlib.contextmanager
+def _hashed(path: Path, facts: FileFacts, hashing: bool):
+    """The file's sha256 taken on a thread while the pass reads it (read._Digest), and its
+    size, both into ``facts`` once the pass is done."""
+    digest = read._Digest(path) if hashing else contextlib.nullcontext()
+    with digest:
+        yield
     facts.size_bytes = path.stat().st_size
     if hashing:
-        facts.sha256 = digest[0]
+        facts.sha256 = digest.hexdigest
 
 
 def _transport_or_stata(plan, path, fmt, facts, hashing):
     """SAS transport (xpt) and Stata (dta) files through pandas' chunked readers, a batch of
     rows at a time, each converted as read.read converts the whole file; hashed on a thread
     as Parquet is. A file without rows is read whole (it is small) for its header."""
-    digest: list[str] = []
-    thread = None
-    if hashing:
-        thread = threading.Thread(target=lambda: digest.append(_file_sha256(path)))
-        thread.start()
-    try:
+    with _hashed(path, facts, hashing):
         offset, seen = 0, False
         for frame in _frames(path, fmt):
             frame, header = read.frame_header(plan, frame, fmt)
@@ -179,12 +174,6 @@ def _transport_or_stata(plan, path, fmt, facts, hashing):
                                     names=list(arrays))
             yield 0, _table(plan, facts, batch, 0, fmt)
         facts.rows = offset
-    finally:
-        if thread is not None:
-            thread.join()
-    facts.size_bytes = path.stat().st_size
-    if hashing:
-        facts.sha256 = digest[0]
 
 
 def _frames(path: Path, fmt: str):
@@ -202,14 +191,6 @@ def _frames(path: Path, fmt: str):
 def _batch_of(frame, names: list[str]) -> pa.RecordBatch:
     return pa.record_batch([read._arrow_of(frame[n]).combine_chunks() for n in names],
                            names=list(names))
-
-
-def _file_sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with path.open("rb") as handle:
-        while block := handle.read(read.BLOCK):
-            digest.update(block)
-    return digest.hexdigest()
 
 
 def _table(plan: Plan, facts: FileFacts, batch: pa.RecordBatch, offset: int,

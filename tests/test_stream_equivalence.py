@@ -282,18 +282,22 @@ def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches)
             assert [e.covariance for e in tier.exposure] == ["cluster(site)"]
 
 
-@pytest.mark.parametrize("suffix", [".xpt", ".dta"])
-def test_streamed_transport_and_stata_files_equal_in_memory(tmp_path, small_batches, suffix):
-    # pandas' chunked readers feed the batches; the file's digest, the sample flow and every
-    # fit must be those of reading the file whole. Files written by pyreadstat (SAS transport
-    # version 5) and pandas (Stata 118), from the same simulated trial as the CSV tests.
+@pytest.mark.parametrize("suffix", [".parquet", ".xpt", ".dta"])
+def test_streamed_parquet_transport_and_stata_files_equal_in_memory(tmp_path, small_batches,
+                                                                      suffix):
+    # Parquet's batch iterator and pandas' chunked readers feed the batches; the file's digest,
+    # the sample flow and every fit must be those of reading the file whole. Files written by
+    # pandas (Parquet, Stata 118) and pyreadstat (SAS transport version 5), from the same
+    # simulated trial as the CSV tests.
     import pandas as pd
     import pyreadstat
 
     csv = simulated_csv(tmp_path / "trial.csv")
     frame = pd.read_csv(csv, keep_default_na=True)
     path = tmp_path / f"trial{suffix}"
-    if suffix == ".xpt":
+    if suffix == ".parquet":
+        frame.to_parquet(path)
+    elif suffix == ".xpt":
         pyreadstat.write_xport(frame, str(path), file_format_version=5)
     else:
         frame.to_stata(path, write_index=False, version=118)
