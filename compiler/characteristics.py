@@ -37,8 +37,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     table = bound.table
     exposure = plan.variable(analysis.exposure)
     grouped = exposure.kind in ("categorical", "binary")
-    names = [n for n in analysis.variables_used
-             if plan.variable(n).kind != "identifier" and not (grouped and n == exposure.name)]
+    names = _summarised(plan, analysis, exposure, grouped)
     sample = bound.sample(analysis.id)
     base = {"exposure": exposure.name, "grouped": grouped, "quartiles": QUARTILES}
     if any(n not in table.columns for n in (*names, exposure.name)) or sample.rows is None:
@@ -71,11 +70,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
             return out
 
         groups, overall = per_group(stats)
-        role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
-                else "offset" if name == analysis.offset
-                else "cluster" if name == analysis.covariance.cluster else "covariate")
-        return {"name": name, "role": role, "kind": variable.kind, "label": variable.label,
-                "unit": variable.unit, "groups": groups, "overall": overall}
+        return _entry(analysis, exposure, variable, groups, overall)
 
     variables = list(map(summary, names))
     exposure_absent = missing_mask(exposure, table)
@@ -100,28 +95,61 @@ def _population(plan: Plan, analysis: Analysis, table: Table) -> np.ndarray:
     return keep
 
 
+def _summarised(plan: Plan, analysis: Analysis, exposure: Variable, grouped: bool) -> list[str]:
+    """The variables a summary describes: every one the analysis uses but identifiers, and
+    the exposure itself when it defines the groups."""
+    return [n for n in analysis.variables_used
+            if plan.variable(n).kind != "identifier" and not (grouped and n == exposure.name)]
+
+
+def _entry(analysis: Analysis, exposure: Variable, variable: Variable, groups: list,
+           overall: dict) -> dict:
+    name = variable.name
+    role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
+            else "offset" if name == analysis.offset
+            else "cluster" if name == analysis.covariance.cluster else "covariate")
+    return {"name": name, "role": role, "kind": variable.kind, "label": variable.label,
+            "unit": variable.unit, "groups": groups, "overall": overall}
+
+
+def _group_levels(exposure: Variable) -> tuple[str, ...]:
+    return ("0", "1") if exposure.kind == "binary" else exposure.levels
+
+
 def _groups(exposure: Variable, table: Table) -> tuple[tuple[str, ...], list[np.ndarray]]:
     values = table.columns[exposure.name]
     if exposure.kind == "binary":
-        return ("0", "1"), [values == 0.0, values == 1.0]
-    return exposure.levels, [values == level for level in exposure.levels]
+        return _group_levels(exposure), [values == 0.0, values == 1.0]
+    return _group_levels(exposure), [values == level for level in exposure.levels]
+
+
+def _counted(variable: Variable, counts, n: int) -> dict:
+    """A categorical cell from its counts per declared level, or a binary one from its
+    count of 1s (``counts`` then holds that one count)."""
+    if variable.kind == "categorical":
+        cell = {"n": n, "levels": [{"level": level, "count": int(c), "share": _ratio(int(c), n)}
+                                   for level, c in zip(variable.levels, counts)]}
+    else:
+        ones = int(counts[0])
+        cell = {"n": n, "count": ones, "share": _ratio(ones, n)}
+    return {**cell, **({"reason": EMPTY} if n == 0 else {})}
+
+
+def _no_rows() -> dict:
+    """A continuous or count cell of a group without analysed rows."""
+    return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min", "max")),
+            "reason": EMPTY}
 
 
 def _describe(variable: Variable, values: np.ndarray) -> dict:
     n = int(len(values))
     if variable.kind == "categorical":
-        counts = [int(np.count_nonzero(values == level)) for level in variable.levels]
-        return {"n": n, "levels": [{"level": level, "count": c,
-                                    "share": _ratio(c, n)} for level, c in
-                                   zip(variable.levels, counts)],
-                **({"reason": EMPTY} if n == 0 else {})}
+        return _counted(variable, [np.count_nonzero(values == level)
+                                   for level in variable.levels], n)
     if variable.kind == "binary":
-        ones = int(np.count_nonzero(values == 1.0))
-        return {"n": n, "count": ones, "share": _ratio(ones, n),
-                **({"reason": EMPTY} if n == 0 else {})}
+        return _counted(variable, [np.count_nonzero(values == 1.0)], n)
     if n == 0:
-        return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min", "max")),
-                "reason": EMPTY}
+        return _no_rows()
     out = {"n": n, "mean": finite_or_none(np.mean(values)),
            "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None,
            "min": finite_or_none(np.min(values)), "max": finite_or_none(np.max(values))}
@@ -147,11 +175,8 @@ class StreamedSummary:
         exposure = plan.variable(analysis.exposure)
         self.plan, self.analysis, self.exposure = plan, analysis, exposure
         self.grouped = exposure.kind in ("categorical", "binary")
-        self.names = [n for n in analysis.variables_used
-                      if plan.variable(n).kind != "identifier"
-                      and not (self.grouped and n == exposure.name)]
-        self.levels = (("0", "1") if exposure.kind == "binary" else exposure.levels) \
-            if self.grouped else ()
+        self.names = _summarised(plan, analysis, exposure, self.grouped)
+        self.levels = _group_levels(exposure) if self.grouped else ()
         width = len(self.levels) + 1  # the groups, then everyone
         self.n = np.zeros(width, np.int64)
         self.n_population = np.zeros(width, np.int64)
@@ -189,19 +214,12 @@ class StreamedSummary:
 
     def result(self) -> dict:
         def described(variable: Variable, part: "_Part", n: int) -> dict:
-            if variable.kind == "categorical":
-                counts = [0] * len(variable.levels) if part.counts is None else part.counts
-                return {"n": n, "levels": [{"level": level, "count": int(c),
-                                            "share": _ratio(int(c), n)}
-                                           for level, c in zip(variable.levels, counts)],
-                        **({"reason": EMPTY} if n == 0 else {})}
-            if variable.kind == "binary":
-                ones = 0 if part.counts is None else int(part.counts[0])
-                return {"n": n, "count": ones, "share": _ratio(ones, n),
-                        **({"reason": EMPTY} if n == 0 else {})}
+            if variable.kind in ("categorical", "binary"):
+                width = len(variable.levels) if variable.kind == "categorical" else 1
+                return _counted(variable, [0] * width if part.counts is None else part.counts,
+                                n)
             if n == 0:
-                return {"n": 0, **dict.fromkeys(("mean", "sd", "median", "q1", "q3", "min",
-                                                 "max")), "reason": EMPTY}
+                return _no_rows()
             moments = part.moments
             reasons = [NO_QUARTILES]
             if n < 2:
@@ -211,18 +229,13 @@ class StreamedSummary:
                     "min": finite_or_none(part.low), "max": finite_or_none(part.high),
                     "median": None, "q1": None, "q3": None, "reason": "; ".join(reasons)}
 
-        analysis, exposure = self.analysis, self.exposure
+        exposure = self.exposure
         variables = []
         for name in self.names:
             variable = self.plan.variable(name)
             cells = [dict(described(variable, part, int(n)), missing=int(part.missing))
                      for part, n in zip(self.parts[name], self.n)]
-            role = ("outcome" if name == analysis.outcome else "exposure" if name == exposure.name
-                    else "offset" if name == analysis.offset
-                    else "cluster" if name == analysis.covariance.cluster else "covariate")
-            variables.append({"name": name, "role": role, "kind": variable.kind,
-                              "label": variable.label, "unit": variable.unit,
-                              "groups": cells[:-1], "overall": cells[-1]})
+            variables.append(_entry(self.analysis, exposure, variable, cells[:-1], cells[-1]))
         return {
             "exposure": exposure.name, "grouped": self.grouped, "quartiles": None,
             "missing_basis": "population",
