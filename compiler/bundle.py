@@ -123,16 +123,14 @@ def report_epoch(state) -> int:
 def render(document: dict, results_bytes: bytes, fits, epoch: int,
            renderer=None) -> tuple[bytes, bytes]:
     """report.html and report.pdf, each rendered once from the results document, by
-    ``renderer`` (compiler/renderer.py) or here."""
-    from .renderer import render_in_process
+    ``renderer`` (compiler/renderer.py; by default, here)."""
+    from .renderer import Renderer
 
     plots = {fit.analysis: {"fitted": fit.diagnostics.fitted,
                             "residuals": fit.diagnostics.residuals}
              for fit in fits if fit.diagnostics is not None}
-    digest = sha256_hex(results_bytes)
-    if renderer is None:
-        return render_in_process(document, plots, digest, epoch)
-    return renderer.render(document, plots, digest, epoch)
+    renderer = renderer or Renderer(child=False)
+    return renderer.render(document, plots, sha256_hex(results_bytes), epoch)
 
 
 def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, settings,

@@ -193,7 +193,7 @@ def natural_spline_columns(x: np.ndarray, knots: tuple[float, ...]) -> list[np.n
     return columns
 
 
-def rows_read(columns: dict) -> int:
+def _rows_read(columns: dict) -> int:
     return len(next(iter(columns.values()))) if columns else 0
 
 
@@ -213,7 +213,7 @@ class _Builder:
         self.plan = plan
         self.columns = columns
         self.rows = rows  # positions into the table's columns, or a slice of them
-        self.count = len(range(*rows.indices(rows_read(columns)))) if isinstance(rows, slice) \
+        self.count = len(range(*rows.indices(_rows_read(columns)))) if isinstance(rows, slice) \
             else len(rows)
         self.row_ids = row_ids
         self.analysis_id = analysis_id

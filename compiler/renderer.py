@@ -137,8 +137,8 @@ def _warm_up() -> None:
     """Pay the costs of first use that do not depend on the job while the parent still
     reads and fits: the templates' compilation, matplotlib's font manager and first figure,
     WeasyPrint's style sheets and the report's fonts. About 0.3 s of the report's time on the
-    bench; what is drawn here is thrown away, and
-    each real plot and page is made from its own inputs alone (tests/test_renderer.py)."""
+    bench; what is drawn here is thrown away, and each real plot and page is made from its own
+    inputs alone (tests/test_renderer.py)."""
     import numpy as np
 
     from . import plots, render

@@ -354,13 +354,10 @@ def _design_passes(plan: Plan, analysis: Analysis, path: Path, fmt: str, kept: n
 class ClusterCodes:
     """Cluster codes that hold across batches: each value gets the next code when first met,
     batch by batch in file order (sorted within a batch), so every pass over the file gives
-    every row the same code. ``len`` is the number of clusters met so far."""
+    every row the same code."""
 
     def __init__(self):
         self._codes: dict = {}
-
-    def __len__(self) -> int:
-        return len(self._codes)
 
     def of(self, values) -> np.ndarray:
         if getattr(values, "dtype", None) == object:  # text or coded: compare as text
