@@ -121,8 +121,9 @@ IDLE = "import sys"
 LOADED_MAIN = ("import numpy, pyarrow, pyarrow.csv, scipy.linalg, scipy.special, threadpoolctl;"
                " import compiler.read, compiler.bind, compiler.design, compiler.fit,"
                " compiler.characteristics, compiler.results, compiler.bundle")
-LOADED_RENDER = ("import importlib; from compiler import renderer;"
-                 " [importlib.import_module(m) for m in renderer.RENDER_MODULES]")
+LOADED_RENDER = ("import importlib; from compiler import render, renderer;"
+                 " [importlib.import_module(m) for m in renderer.RENDER_MODULES];"
+                 " render.load_weasyprint()")
 
 
 def generate(path: Path, rows: int, seed: int = 20240601) -> None:

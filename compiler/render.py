@@ -35,6 +35,7 @@ def render_html(results: dict, plots: dict, *, results_sha256: str) -> str:
 def render_pdf(html: str, *, epoch: int) -> bytes:
     """The same HTML through WeasyPrint, with creation and modification dates at ``epoch``
     (seconds since 1970, UTC) and a file identifier derived from the HTML and the epoch."""
+    load_weasyprint()
     from weasyprint import HTML
     from weasyprint.urls import URLFetcher, URLFetcherResponse
 
@@ -59,6 +60,43 @@ def render_pdf(html: str, *, epoch: int) -> bytes:
     document.metadata.modified = stamp
     identifier = hashlib.sha256(html.encode("utf-8") + str(epoch).encode()).hexdigest()[:32]
     return document.write_pdf(pdf_identifier=identifier.encode("ascii"))
+
+
+def load_weasyprint() -> None:
+    """Import WeasyPrint without the compiler runs of its library search.
+
+    WeasyPrint tries several names for each of its seven libraries (Pango, HarfBuzz, …), the
+    Windows and macOS ones first; cffi hands each name that does not load to
+    ``ctypes.util.find_library``, which on Linux asks ldconfig's cache and, when the cache does
+    not know the name, runs gcc and ld to look for it: some twenty compiler runs, 0.3 s of an
+    import of about a second. The names that do load are found in the cache or loaded by
+    their soname (the dynamic loader's own search, LD_LIBRARY_PATH included), so the import
+    first runs with the lookup confined to the cache; should that fail (a library that only
+    the compiler's search finds), it runs again with the full lookup.
+    """
+    import sys
+
+    if "weasyprint" in sys.modules:
+        return
+    import contextlib
+    import ctypes.util
+    import io
+
+    from_cache = getattr(ctypes.util, "_findSoname_ldconfig", None)
+    if from_cache is not None:
+        full = ctypes.util.find_library
+        ctypes.util.find_library = from_cache
+        try:
+            with contextlib.redirect_stdout(io.StringIO()):  # its advice on failure: not ours
+                import weasyprint  # noqa: F401
+            return
+        except OSError:
+            for name in [m for m in sys.modules if m == "weasyprint" or
+                         m.startswith("weasyprint.")]:
+                del sys.modules[name]
+        finally:
+            ctypes.util.find_library = full
+    import weasyprint  # noqa: F401, F811
 
 
 _INLINE_SVG = re.compile(r"<svg class=\"plot-svg\".*?</svg>", re.S)

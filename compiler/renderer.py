@@ -27,7 +27,7 @@ from pathlib import Path
 # and imports, so nothing would be hidden (bench/run.py measures the large case).
 WORTHWHILE_BYTES = 32 << 20
 RENDER_MODULES = ("jinja2", "markupsafe", "matplotlib.figure",
-                  "matplotlib.backends.backend_svg", "weasyprint")
+                  "matplotlib.backends.backend_svg")  # and WeasyPrint: render.load_weasyprint
 
 
 def render_in_process(document: dict, plots: dict, results_sha256: str,
@@ -105,8 +105,11 @@ def _serve() -> int:
     """The child: import and warm up, then render the one job on stdin."""
     import importlib
 
+    from .render import load_weasyprint
+
     for name in RENDER_MODULES:
         importlib.import_module(name)
+    load_weasyprint()
     try:
         _warm_up()
     except Exception:  # noqa: BLE001 - the real render meets the same fault and reports it

@@ -61,3 +61,51 @@ def test_small_files_and_loaded_libraries_render_in_process(tmp_path, monkeypatc
         f.truncate(renderer.WORTHWHILE_BYTES)
     monkeypatch.setitem(__import__("sys").modules, "weasyprint", object())
     assert renderer.Renderer.for_data(big)._process is None  # already loaded here
+
+
+# WeasyPrint's import, in a fresh interpreter each (in this one it may be loaded already)
+_IMPORT = r"""
+import ctypes.util, sys
+compiler_runs = []
+gcc = ctypes.util._findLib_gcc
+ctypes.util._findLib_gcc = lambda name: compiler_runs.append(name) or gcc(name)
+{prepare}
+from compiler import render
+render.load_weasyprint()
+import weasyprint
+print(len(compiler_runs), ctypes.util.find_library.__name__)
+"""
+
+# The cache-only attempt fails once, as on a machine whose Pango only the compiler's search
+# finds: the import must be retried with the full lookup, and WeasyPrint's printed advice on
+# the failed attempt must not reach the run's stdout (it carries --json).
+_FAIL_ONCE = r"""
+class FailOnce:
+    failed = False
+    def find_spec(self, name, path=None, target=None):
+        if name == "weasyprint.text.ffi" and not FailOnce.failed:
+            FailOnce.failed = True
+            print("WeasyPrint could not import some external libraries")
+            raise OSError("cannot load library 'pango-1.0'")
+sys.meta_path.insert(0, FailOnce())
+"""
+
+
+def _import_weasyprint(prepare: str = "") -> list[str]:
+    import subprocess
+    import sys
+
+    done = subprocess.run([sys.executable, "-c", _IMPORT.format(prepare=prepare)],
+                          capture_output=True, text=True, check=True)
+    return done.stdout.split()
+
+
+def test_weasyprint_loads_without_running_the_compiler():
+    # only ldconfig's cache is asked; the lookup is restored afterwards
+    assert _import_weasyprint() == ["0", "find_library"]
+
+
+def test_weasyprint_loads_with_the_full_lookup_when_the_cache_is_not_enough():
+    runs, restored = _import_weasyprint(_FAIL_ONCE)
+    assert restored == "find_library"  # and nothing but this line on stdout
+    assert int(runs) > 0  # the second attempt used the compiler's search
