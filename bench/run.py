@@ -121,9 +121,7 @@ IDLE = "import sys"
 LOADED_MAIN = ("import numpy, pyarrow, pyarrow.csv, scipy.linalg, scipy.special, threadpoolctl;"
                " import compiler.read, compiler.bind, compiler.design, compiler.fit,"
                " compiler.characteristics, compiler.results, compiler.bundle")
-LOADED_RENDER = ("import importlib; from compiler import render, renderer;"
-                 " [importlib.import_module(m) for m in renderer.RENDER_MODULES];"
-                 " render.load_weasyprint()")
+LOADED_RENDER = "from compiler import renderer; renderer.load_libraries()"
 
 
 def generate(path: Path, rows: int, seed: int = 20240601) -> None:

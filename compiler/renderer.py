@@ -103,13 +103,7 @@ def _ask(process: subprocess.Popen, job: tuple) -> tuple[bytes, bytes] | None:
 
 def _serve() -> int:
     """The child: import and warm up, then render the one job on stdin."""
-    import importlib
-
-    from .render import load_weasyprint
-
-    for name in RENDER_MODULES:
-        importlib.import_module(name)
-    load_weasyprint()
+    load_libraries()
     try:
         _warm_up()
     except Exception:  # noqa: BLE001 - the real render meets the same fault and reports it
@@ -122,6 +116,17 @@ def _serve() -> int:
     sys.stdout.buffer.write(pickle.dumps(answer, protocol=pickle.HIGHEST_PROTOCOL))
     sys.stdout.buffer.flush()
     return 0
+
+
+def load_libraries() -> None:
+    """Import everything the render needs: the modules above, then WeasyPrint."""
+    import importlib
+
+    from .render import load_weasyprint
+
+    for name in RENDER_MODULES:
+        importlib.import_module(name)
+    load_weasyprint()
 
 
 def _serve_and_leave() -> None:
