@@ -124,10 +124,10 @@ def render(document: dict, results_bytes: bytes, fits, epoch: int,
            renderer=None) -> tuple[bytes, bytes]:
     """report.html and report.pdf, each rendered once from the results document, by
     ``renderer`` (compiler/renderer.py; by default, here)."""
+    from .plots import ResidualSample
     from .renderer import Renderer
 
-    plots = {fit.analysis: {"fitted": fit.diagnostics.fitted,
-                            "residuals": fit.diagnostics.residuals}
+    plots = {fit.analysis: ResidualSample.of(fit.diagnostics.fitted, fit.diagnostics.residuals)
              for fit in fits if fit.diagnostics is not None}
     renderer = renderer or Renderer(child=False)
     return renderer.render(document, plots, sha256_hex(results_bytes), epoch)

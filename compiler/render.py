@@ -20,8 +20,8 @@ from .resources import templates_dir
 def render_html(results: dict, plots: dict, *, results_sha256: str) -> str:
     """The report as one HTML document: CSS inlined, plots as inline SVG, no scripts.
 
-    ``plots`` maps analysis id → {"fitted": ndarray, "residuals": ndarray} for the report
-    tier's residual plots; an analysis without an entry gets a note instead of plots.
+    ``plots`` maps analysis id → the report tier's :class:`~compiler.plots.ResidualSample`;
+    an analysis without an entry gets a note instead of plots.
     """
     view = viewmodel.build(results, plots, results_sha256=results_sha256)
     env = _environment()

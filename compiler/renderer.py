@@ -3,7 +3,7 @@
 jinja2, matplotlib and WeasyPrint take more than a second to import, all of it before the
 first plot or page. A run on a large file starts this child first; it imports them on the
 other core while the parent reads, binds and fits, then waits for one job on its stdin:
-the results document, the report tier's residuals and the PDF's epoch. It renders with the
+the results document, the report tier's residual samples and the PDF's epoch. It renders with the
 same functions the parent would (compiler/render.py), so the bytes are the same either way
 (tests/test_renderer.py), and writes the HTML and PDF back on its stdout.
 
@@ -154,10 +154,11 @@ def _warm_up() -> None:
 
     render._environment().get_template("report.html")
     points = np.linspace(-1.0, 1.0, 64)
+    sample = plots.ResidualSample.of(points, points)
     plots.forest([plots.ForestRow("warm", 0.0, -1.0, 1.0)], key="warm", ratio=False,
                  axis_label="warm")
-    plots.residuals_vs_fitted(points, points, key="warm", residual_label="warm")
-    plots.normal_quantiles(points, key="warm", residual_label="warm")
+    plots.residuals_vs_fitted(sample, key="warm", residual_label="warm")
+    plots.normal_quantiles(sample, key="warm", residual_label="warm")
     css = (templates_dir() / "report.css").read_text(encoding="utf-8")
     render.render_pdf(f"<html><head><style>{css}</style></head><body><h1>warm</h1>"
                       "<p>warm <b>warm</b> <code>warm</code></p><table class=\"grid\"><tr>"

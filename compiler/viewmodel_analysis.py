@@ -39,7 +39,7 @@ FIT_STATISTICS = (
 FIT_GAPS = {"iterations": "the fitting routine does not report an iteration count here"}
 
 
-def analysis_view(a: dict, plot_data: dict | None, notes: Notes) -> dict:
+def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes) -> dict:
     family = a["family"]
     stat = "t" if family == "gaussian" else "z"
     level = f.level(a["confidence"])
@@ -61,7 +61,7 @@ def analysis_view(a: dict, plot_data: dict | None, notes: Notes) -> dict:
         "gaussian": family == "gaussian",
         "sigma2": ({t["name"]: _cell(notes, t.get("sigma2"), t.get("reason"))
                     for t in a["tiers"]} if family == "gaussian" else {}),
-        "diagnostics": _diagnostics(a, plot_data, notes),
+        "diagnostics": _diagnostics(a, sample, notes),
         "warnings": list(a.get("warnings") or []),
         "notes": notes.items,
     }
@@ -168,7 +168,8 @@ def _forest_caption(a: dict) -> str:
             f"intervals. The filled square is the report tier ({a['report_tier']}).")
 
 
-def _diagnostics(a: dict, plot_data: dict | None, notes: Notes) -> dict | None:
+def _diagnostics(a: dict, sample: plotting.ResidualSample | None,
+                 notes: Notes) -> dict | None:
     d = a.get("diagnostics")
     if d is None:
         return {"absent": "No diagnostics were computed for this analysis."}
@@ -189,19 +190,17 @@ def _diagnostics(a: dict, plot_data: dict | None, notes: Notes) -> dict | None:
         "plots_absent": "The residual plots were not drawn: the fitted values and residuals "
                         "were not available to the report.",
     }
-    if plot_data is not None and len(plot_data.get("fitted", ())) > 0:
-        fitted, residuals = plot_data["fitted"], plot_data["residuals"]
-        n = len(fitted)
-        shown = len(plotting.thin(n))
+    if sample is not None and sample.n > 0:
+        n, shown = sample.n, len(sample.fitted)
         subset = ("" if shown == n else
                   f" With {f.integer(n)} rows, every {n / shown:.3g}th row in data order is "
                   f"drawn ({f.integer(shown)} points, evenly spaced).")
         key = f"{a['id']}-{d['tier']}"
         view["plots"] = {
             "fitted": Markup(plotting.residuals_vs_fitted(
-                fitted, residuals, key=f"{key}-rvf", residual_label=residual_label)),
+                sample, key=f"{key}-rvf", residual_label=residual_label)),
             "quantiles": Markup(plotting.normal_quantiles(
-                residuals, key=f"{key}-qq", residual_label=residual_label)),
+                sample, key=f"{key}-qq", residual_label=residual_label)),
             "caption": f"Tier {d['tier']}: {residual_label}s against fitted values (left) and "
                        f"against standard normal quantiles (right).{subset}"}
     return view

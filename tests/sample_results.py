@@ -14,6 +14,8 @@ import math
 import numpy as np
 from scipy import stats
 
+from compiler.plots import ResidualSample
+
 PLAN_SHA = "3f9a0c1d2e4b5a6978c0d1e2f3a4b5c6d7e8f90123456789abcdef0123456789"
 DATA_SHA = "a1b2c3d4e5f60718293a4b5c6d7e8f9001122334455667788990aabbccddeeff"
 RESULTS_SHA = "9e8d7c6b5a4f3e2d1c0b9a8f7e6d5c4b3a291807f6e5d4c3b2a1908f7e6d5c4b"
@@ -376,12 +378,13 @@ def results(*, preregistered: bool = True, rehearsal: bool = False) -> dict:
 
 
 def plots(n: int = 537, seed: int = 7) -> dict:
-    """Report-tier fitted values and standardized residuals, by analysis id."""
+    """The residual plots' samples of report-tier fitted values and standardized residuals,
+    by analysis id."""
     rng = np.random.default_rng(seed)
     fitted = rng.normal(38, 9, n)
     residuals = rng.standard_t(8, n)
-    return {"primary": {"fitted": fitted, "residuals": residuals},
-            "settled": {"fitted": rng.uniform(0.1, 0.8, n), "residuals": rng.normal(0, 1, n)}}
+    return {"primary": ResidualSample.of(fitted, residuals),
+            "settled": ResidualSample.of(rng.uniform(0.1, 0.8, n), rng.normal(0, 1, n))}
 
 
 def small_results(**kwargs) -> dict:

@@ -66,13 +66,34 @@ def test_small_samples_are_drawn_whole():
     assert len(plots.thin(537)) == 537
 
 
+@pytest.mark.parametrize("n", [1, 2, 5, 537, 5000, 5001, 1_000_000])
+def test_a_residual_sample_holds_the_drawn_points_and_the_quartiles_of_all(n):
+    # Reference: numpy itself, on the n-long arrays: the points at thin(n) in data order, the
+    # sorted residuals (np.sort) at the same positions, and np.quantile's Q1 and Q3.
+    rng = np.random.default_rng(n)
+    fitted, residuals = rng.normal(size=n), rng.standard_t(5, size=n)
+    before = residuals.copy()
+    sample = plots.ResidualSample.of(fitted, residuals)
+    keep = plots.thin(n)
+    assert sample.n == n and len(sample.fitted) == min(n, plots.MAX_POINTS)
+    assert sample.fitted.tobytes() == fitted[keep].tobytes()
+    assert sample.residuals.tobytes() == residuals[keep].tobytes()
+    assert sample.ordered.tobytes() == np.sort(residuals)[keep].tobytes()
+    if n >= 2:
+        assert [sample.q1, sample.q3] == list(np.quantile(residuals, [0.25, 0.75]))
+    else:
+        assert sample.q1 is None and sample.q3 is None
+    assert residuals.tobytes() == before.tobytes()  # the caller's residuals are not sorted
+
+
 def test_the_residual_plots_repeat_their_bytes():
     rng = np.random.default_rng(3)
-    fitted, residuals = rng.normal(size=300), rng.normal(size=300)
-    first = plots.normal_quantiles(residuals, key="q", residual_label="residual")
-    assert plots.normal_quantiles(residuals, key="q", residual_label="residual") == first
-    assert plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual") \
-        == plots.residuals_vs_fitted(fitted, residuals, key="r", residual_label="residual")
+    sample = plots.ResidualSample.of(rng.normal(size=300), rng.normal(size=300))
+    again = plots.ResidualSample.of(sample.fitted.copy(), sample.residuals.copy())
+    first = plots.normal_quantiles(sample, key="q", residual_label="residual")
+    assert plots.normal_quantiles(again, key="q", residual_label="residual") == first
+    assert plots.residuals_vs_fitted(sample, key="r", residual_label="residual") \
+        == plots.residuals_vs_fitted(again, key="r", residual_label="residual")
 
 
 def test_the_normal_quantiles_agree_with_scipy_at_blom_positions():
@@ -96,7 +117,8 @@ def test_the_report_renders_without_importing_scipy(tmp_path):
 
     code = ("import sys, numpy as np; from compiler import plots, renderer; "
             "renderer._warm_up(); r = np.random.default_rng(1).normal(size=20000); "
-            "plots.normal_quantiles(r, key='q', residual_label='r'); "
+            "plots.normal_quantiles(plots.ResidualSample.of(r, r), key='q', "
+            "residual_label='r'); "
             "print('scipy' in sys.modules)")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           check=True)

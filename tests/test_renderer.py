@@ -13,6 +13,7 @@ import pytest
 
 from compiler import bundle, renderer
 from compiler.pipeline import Stamp, analyse, compile_plan
+from compiler.plots import ResidualSample
 
 
 @pytest.fixture(scope="module")
@@ -23,7 +24,7 @@ def job(tmp_path_factory):
     document = bundle.results_document(analysed, Stamp(preregistered=False),
                                        plan_bytes=plan_path.read_bytes(), state=None,
                                        settings=None)
-    plots = {f.analysis: {"fitted": f.diagnostics.fitted, "residuals": f.diagnostics.residuals}
+    plots = {f.analysis: ResidualSample.of(f.diagnostics.fitted, f.diagnostics.residuals)
              for f in analysed.fits if f.diagnostics is not None}
     return document, plots, "ab" * 32, 1_700_000_000
 
