@@ -32,16 +32,19 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
     """The confirmatory run. Exit 4 unless the plan matches its lock (or ``unlocked``)."""
     from . import lock, seal
     from .renderer import Renderer
-    from .pipeline import Stamp, analyse, compile_plan, data_path_for
+    from .pipeline import Stamp, analyse, compile_plan, data_path_for, named_data_path
 
     plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
-    plan = compile_plan(plan_path)
-    state = None if unlocked else lock.require_match(plan, plan_path)
-    target = Path(out) if out else Path("out") / plan.study.id
-    seal.refuse_existing(target)
-    key = seal.load_signing_key(sign_key) if sign_key else None
-    data_path = data_path_for(plan, data)
-    with Renderer.for_data(data_path) as renderer:
+    with Renderer() as renderer:
+        # the render child's imports take longer than the plan's checks and the lock's:
+        # it starts as soon as the plan file has named its data (and is stopped on refusal)
+        plan = compile_plan(plan_path, loaded=lambda tree: renderer.start_for(
+            named_data_path(tree, data)))
+        state = None if unlocked else lock.require_match(plan, plan_path)
+        target = Path(out) if out else Path("out") / plan.study.id
+        seal.refuse_existing(target)
+        key = seal.load_signing_key(sign_key) if sign_key else None
+        data_path = data_path_for(plan, data)
         _say(progress, f"reading and fitting {data_path}")
         stamp = Stamp(preregistered=state is not None)
         why = "this run did not use a lock (--unlocked)"

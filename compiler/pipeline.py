@@ -44,13 +44,32 @@ class Analysed:
     characteristics: dict | None = None  # analysis id → its summary (characteristics.py)
 
 
-def compile_plan(path: str | Path) -> Plan:
-    """load → validate → resolve. Raises problems.Stop (exit 2) with every problem found."""
+def compile_plan(path: str | Path, *, loaded=None) -> Plan:
+    """load → validate → resolve. Raises problems.Stop (exit 2) with every problem found.
+    ``loaded`` is called with the source tree as soon as it is read, before the checks."""
     from . import load, resolve, validate
 
     tree = load.load(path)
+    if loaded is not None:
+        loaded(tree)
     validate.validate(tree)
     return resolve.resolve(tree)
+
+
+def named_data_path(tree, override: str | Path | None) -> Path | None:
+    """The data file a loaded, not yet checked plan names: `--data` when given, else its
+    `data.path` relative to the plan file, else None. For work worth starting before the
+    checks (the render child); the run itself reads ``data_path_for`` of the checked plan,
+    which gives the same path for a valid plan."""
+    from .load import Mapping, Scalar
+
+    if override is not None:
+        return Path(override)
+    data = tree.root.get("data")
+    path = data.get("path") if isinstance(data, Mapping) else None
+    if isinstance(path, Scalar) and isinstance(path.value, str):
+        return Path(tree.source).parent / path.value
+    return None
 
 
 def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,

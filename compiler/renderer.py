@@ -40,19 +40,28 @@ def render_in_process(document: dict, plots: dict, results_sha256: str,
 
 
 class Renderer:
-    """Renders the report here, or in a child started at construction (``child=True``)."""
+    """Renders the report here, or in a child started at construction (``child=True``) or
+    by ``start_for``."""
 
-    def __init__(self, child: bool):
+    def __init__(self, child: bool = False):
         self._process = _start() if child else None
 
     @classmethod
     def for_data(cls, data_path) -> "Renderer":
         """A child when the data file is large and the render libraries are not loaded yet."""
+        renderer = cls()
+        renderer.start_for(data_path)
+        return renderer
+
+    def start_for(self, data_path) -> None:
+        """Start the child now if none runs, the data file is large and the render libraries
+        are not loaded here yet."""
         try:
             large = data_path is not None and Path(data_path).stat().st_size >= WORTHWHILE_BYTES
         except OSError:
             large = False
-        return cls(child=large and "weasyprint" not in sys.modules)
+        if self._process is None and large and "weasyprint" not in sys.modules:
+            self._process = _start()
 
     def render(self, document: dict, plots: dict, results_sha256: str,
                epoch: int) -> tuple[bytes, bytes]:

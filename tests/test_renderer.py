@@ -3,10 +3,13 @@
 A run on a large file renders in a child process that imported the report's libraries while
 the parent read and fitted; the bundle must not depend on which process rendered it. These
 tests run the demo study through both paths and compare the bytes, and check that a child
-that fails or is never asked leaves no process behind.
+that fails, is never asked or belongs to a refused run leaves no process behind, and that a
+run starts its child as soon as the plan file names its data.
 """
 
 from __future__ import annotations
+
+from pathlib import Path
 
 import bundlekit
 import pytest
@@ -62,6 +65,51 @@ def test_small_files_and_loaded_libraries_render_in_process(tmp_path, monkeypatc
         f.truncate(renderer.WORTHWHILE_BYTES)
     monkeypatch.setitem(__import__("sys").modules, "weasyprint", object())
     assert renderer.Renderer.for_data(big)._process is None  # already loaded here
+
+
+def test_a_run_starts_the_child_once_the_plan_names_its_data_before_the_checks(tmp_path,
+                                                                              monkeypatch):
+    from compiler import validate
+
+    plan_path, data = bundlekit.study(tmp_path / "study")
+    events = []
+    monkeypatch.setattr(renderer.Renderer, "start_for",
+                        lambda self, path: events.append(("start the child for", path)))
+    checks = validate.validate
+    monkeypatch.setattr(validate, "validate",
+                        lambda tree: events.append(("check the plan", None)) or checks(tree))
+    bundle.run(plan_path, data=data, out=tmp_path / "out", unlocked=True, progress=False)
+    assert events == [("start the child for", data), ("check the plan", None)]
+
+
+def test_a_run_refused_after_its_child_started_leaves_no_process(tmp_path, monkeypatch):
+    from compiler.problems import Stop
+
+    plan_path, data = bundlekit.study(tmp_path / "study")
+    started = []
+    start = renderer._start
+    monkeypatch.setattr(renderer, "_start", lambda: started.append(start()) or started[-1])
+    monkeypatch.setattr(renderer, "WORTHWHILE_BYTES", 0)  # the demo's small file is enough
+    monkeypatch.delitem(__import__("sys").modules, "weasyprint", raising=False)
+    (tmp_path / "out").mkdir()  # bundles are never overwritten: the run refuses
+    with pytest.raises(Stop):
+        bundle.run(plan_path, data=data, out=tmp_path / "out", unlocked=True, progress=False)
+    assert len(started) == 1 and started[0].returncode is not None  # started, then reaped
+
+
+def test_the_data_a_plan_names_is_found_before_the_plan_is_checked(tmp_path):
+    from compiler.load import load
+    from compiler.pipeline import named_data_path
+
+    def named(text: str, override=None):
+        (tmp_path / "p.yaml").write_text(text)
+        return named_data_path(load(tmp_path / "p.yaml"), override)
+
+    assert named("data:\n  path: sub/d.csv\n") == tmp_path / "sub" / "d.csv"
+    assert named("data:\n  path: sub/d.csv\n", override="e.csv") == Path("e.csv")
+    assert named("study: {id: x}\n") is None  # no data section
+    assert named("data:\n  path: 12\n") is None  # not a path; the checks say so later
+    assert named("data: [a, b]\n") is None
 
 
 # WeasyPrint's import, in a fresh interpreter each (in this one it may be loaded already)
