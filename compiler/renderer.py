@@ -17,6 +17,7 @@ The channel is pickle over the child's own pipes: both ends are this program.
 
 from __future__ import annotations
 
+import gc
 import os
 import pickle
 import subprocess
@@ -117,6 +118,10 @@ def _serve() -> int:
         _warm_up()
     except Exception:  # noqa: BLE001 - the real render meets the same fault and reports it
         pass
+    # One job is left, and then the process ends: what the render leaves behind goes with it.
+    # The cyclic collector's passes over the libraries' objects and the layout's took 0.2 s of
+    # the bench report's 2.6 s and freed nothing measurable (the same peak resident memory).
+    gc.disable()
     job = sys.stdin.buffer.read()
     if not job:
         return 0  # the parent stopped before its report
