@@ -122,8 +122,9 @@ class ResidualSample:
     residuals at ``thin(n)`` in data order, the sorted residuals at the same positions, and
     the residuals' quartiles (None below two rows) for the Q–Q plot's reference line.
 
-    Made where the fit is (``of``), so the render gets a few thousand points, not two n-long
-    arrays: on the bench, 16 MB less to pickle to the render child and to hold there."""
+    Made by the run's process (``of``, in bundle.render), so the render gets a few thousand
+    points, not two n-long arrays: on the bench, 16 MB less to pickle to the render child
+    and to hold there."""
 
     n: int
     fitted: np.ndarray

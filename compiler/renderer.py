@@ -1,14 +1,15 @@
 """The render pass in a child process that loads the report's libraries while the run reads.
 
 jinja2, matplotlib and WeasyPrint take more than a second to import, all of it before the
-first plot or page. A run on a large file starts this child first; it imports them on the
-other core while the parent reads, binds and fits, then waits for one job on its stdin:
-the results document, the report tier's residual samples and the PDF's epoch. It renders with the
-same functions the parent would (compiler/render.py), so the bytes are the same either way
-(tests/test_renderer.py), and writes the HTML and PDF back on its stdout.
+first plot or page. A run on a large file starts this child as soon as its plan file names
+the data; it imports them on the other core while the parent checks the plan, reads, binds
+and fits, then waits for one job on its stdin: the results document, the report tier's
+residual samples and the PDF's epoch. It renders with the same functions the parent would
+(compiler/render.py), so the bytes are the same either way (tests/test_renderer.py), and
+writes the HTML and PDF back on its stdout.
 
 The child is worth its start-up only when there is reading and fitting to hide the imports
-behind and the libraries are not loaded already: ``for_data`` decides. If the child cannot
+behind and the libraries are not loaded already: ``start_for`` decides. If the child cannot
 start, dies or fails, the parent renders in its own process, so a failure is reported from
 where it happened, with the usual one-line message (or the traceback under --debug).
 
