@@ -240,10 +240,10 @@ class _Builder:
         return [(variable.name, self.numeric(variable.name))]
 
     def term_columns(self, term: Term) -> list[tuple[str, np.ndarray]]:
-        labels = term_labels(self.plan, term)  # columns.py: the labels check --explain prints
         name = term.variables[0]
         if term.form == "variable":
             return self.variable_columns(self.plan.variable(name))
+        labels = term_labels(self.plan, term)  # columns.py: the labels check --explain prints
         if term.form == "power":
             return [(labels[0], self.numeric(name) ** int(term.degree or 1))]
         if term.form == "log":

@@ -8,6 +8,7 @@ from, so later passes can still point back into the plan file.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import cached_property
 from typing import Literal
 
 from .problems import Place
@@ -269,7 +270,12 @@ class Plan:
     source: str = "<plan>"  # the plan file's path as given
 
     def variable(self, name: str) -> Variable:
-        return next(v for v in self.variables if v.name == name)
+        return self._variables_by_name[name]
+
+    @cached_property
+    def _variables_by_name(self) -> dict[str, Variable]:
+        # the design asks for each term's variables once per block of rows: a dict, not a scan
+        return {v.name: v for v in self.variables}
 
     def population(self, name: str | None) -> Population | None:
         return None if name is None else next(p for p in self.populations if p.name == name)
