@@ -19,7 +19,7 @@ import numpy as np
 
 from .bound import BoundData, Table
 from .inference import finite_or_none
-from .order_stats import quartiles
+from .order_stats import quartiles, quartiles_of_sorted
 from .plan import Analysis, Plan, Variable
 from .population import holds, missing_mask
 
@@ -55,22 +55,24 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     # by position is about ten times faster than by a boolean mask whose pattern is random
     # (every branch mispredicted), and gives the same values in the same order.
     picks = [np.flatnonzero(analysed & m) for m in (*group_masks, everyone)]
-
-    def per_group(fn) -> tuple[list, dict]:
-        results = [fn(m, rows) for m, rows in zip((*group_masks, everyone), picks)]
-        return results[:-1], results[-1]
+    # the groups split the analysed rows (bind keeps no row without a declared exposure
+    # level): the overall quartiles can then come from the groups' sorted values
+    split = grouped and sum(len(rows) for rows in picks[:-1]) == len(picks[-1])
 
     def summary(name: str) -> dict:
         variable = plan.variable(name)
         absent = missing_mask(variable, table)
         values = table.columns[variable.name]
 
-        def stats(group: np.ndarray, rows: np.ndarray) -> dict:
-            out = _describe(variable, values[rows])
+        def stats(group: np.ndarray, rows: np.ndarray, sorted_groups=None):
+            picked = values[rows]  # this group's own copy, which _describe may sort
+            out = _describe(variable, picked, sorted_groups)
             out["missing"] = int(np.count_nonzero(population & group & absent))
-            return out
+            return out, picked
 
-        groups, overall = per_group(stats)
+        described = [stats(m, rows) for m, rows in zip(group_masks, picks[:-1])]
+        groups = [out for out, _ in described]
+        overall, _ = stats(everyone, picks[-1], [p for _, p in described] if split else None)
         return _entry(analysis, exposure, variable, groups, overall)
 
     variables = list(map(summary, names))
@@ -142,7 +144,9 @@ def _no_rows() -> dict:
             "reason": EMPTY}
 
 
-def _describe(variable: Variable, values: np.ndarray) -> dict:
+def _describe(variable: Variable, values: np.ndarray, sorted_groups=None) -> dict:
+    """One cell. A continuous or count ``values`` is sorted in place, unless
+    ``sorted_groups`` (its values split into sorted parts) gives its order statistics."""
     n = int(len(values))
     if variable.kind == "categorical":
         return _counted(variable, [np.count_nonzero(values == level)
@@ -153,10 +157,16 @@ def _describe(variable: Variable, values: np.ndarray) -> dict:
         return _no_rows()
     out = {"n": n, "mean": finite_or_none(np.mean(values)),
            "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None}
-    # last, because it sorts: ``values`` is this group's own copy (picked by position)
-    q1, median, q3 = quartiles(values)
+    if sorted_groups is None:
+        # last, because it sorts: ``values`` is this group's own copy (picked by position)
+        q1, median, q3 = quartiles(values)
+        low, high = values[0], values[-1]
+    else:
+        q1, median, q3 = quartiles_of_sorted(sorted_groups)
+        ends = [part[[0, -1]] for part in sorted_groups if len(part)]
+        low, high = min(e[0] for e in ends), max(e[1] for e in ends)
     out.update(median=finite_or_none(median), q1=finite_or_none(q1), q3=finite_or_none(q3),
-               min=finite_or_none(values[0]), max=finite_or_none(values[-1]))
+               min=finite_or_none(low), max=finite_or_none(high))
     if n < 2:
         out["reason"] = "a standard deviation needs at least two rows"
     return out

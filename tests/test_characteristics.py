@@ -81,6 +81,10 @@ def test_the_overall_column_pools_every_group(summary):
     assert overall["n"] == 5
     assert overall["mean"] == pytest.approx(np.mean(ref))
     assert overall["sd"] == pytest.approx(np.std(ref, ddof=1))
+    # taken from the groups' sorted values, not a sort of their union: the same bits
+    assert [overall[k] for k in ("q1", "median", "q3")] == list(
+        np.quantile(ref, [0.25, 0.5, 0.75]))
+    assert (overall["min"], overall["max"]) == (ref.min(), ref.max())
 
 
 def test_a_count_variable_has_median_and_quartiles(summary):
