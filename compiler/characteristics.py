@@ -65,7 +65,10 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
         values = table.columns[variable.name]
 
         def stats(group: np.ndarray, rows: np.ndarray, sorted_groups=None):
-            picked = values[rows]  # this group's own copy, which _describe may sort
+            if sorted_groups is not None and len(rows) == len(values):
+                picked = values  # every row, and nothing sorts it: the column itself
+            else:
+                picked = values[rows]  # this group's own copy, which _describe may sort
             out = _describe(variable, picked, sorted_groups)
             out["missing"] = int(np.count_nonzero(population & group & absent))
             return out, picked

@@ -129,6 +129,23 @@ def test_the_summary_is_plain_json_without_nan(summary):
     json.dumps(summary, allow_nan=False)
 
 
+def test_every_row_analysed_leaves_the_columns_unsorted_and_matches_numpy(tmp_path):
+    # Every row analysed: the overall cell reads the bound column itself, which nothing may
+    # sort. Reference: numpy on the column as written.
+    path = tmp_path / "d.csv"
+    y = [5.0, 1.0, 4.0, 2.0, 3.0, 9.0, 0.5]
+    arm = ["b", "a", "a", "b", "a", "b", "a"]
+    path.write_text("pid,arm,y\n" + "".join(f"p{i},{a},{v}\n" for i, (a, v) in
+                                             enumerate(zip(arm, y))))
+    plan = make_plan({"pid": "identifier", "arm": {"kind": "categorical", "levels": ["a", "b"]},
+                      "y": "continuous"}, row_id="pid", analyses=[make_analysis("main", "y", "arm")])
+    bound = bind(plan, read(plan, path))
+    overall = _variable(summarise(plan, plan.analyses[0], bound), "y")["overall"]
+    assert list(bound.table.columns["y"]) == y
+    assert [overall[k] for k in ("q1", "median", "q3")] == list(np.quantile(y, [0.25, 0.5, 0.75]))
+    assert (overall["mean"], overall["min"], overall["max"]) == (np.mean(y), 0.5, 9.0)
+
+
 def test_a_continuous_exposure_is_summarised_overall_only(tmp_path):
     path = tmp_path / "d.csv"
     path.write_text("pid,dose,y\np1,1.0,2.0\np2,2.0,3.5\np3,4.0,5.0\n")
