@@ -57,19 +57,15 @@ def compile_plan(path: str | Path, *, loaded=None) -> Plan:
 
 
 def named_data_path(tree, override: str | Path | None) -> Path | None:
-    """The data file a loaded, not yet checked plan names: `--data` when given, else its
-    `data.path` relative to the plan file, else None. For work worth starting before the
-    checks (the render child); the run itself reads ``data_path_for`` of the checked plan,
-    which gives the same path for a valid plan."""
+    """The data file a loaded, not yet checked plan names (``_data_file``), or None when
+    it names none as a string. For work worth starting before the checks (the render
+    child); the run itself reads ``data_path_for`` of the checked plan, the same file."""
     from .load import Mapping, Scalar
 
-    if override is not None:
-        return Path(override)
     data = tree.root.get("data")
     path = data.get("path") if isinstance(data, Mapping) else None
-    if isinstance(path, Scalar) and isinstance(path.value, str):
-        return Path(tree.source).parent / path.value
-    return None
+    written = path.value if isinstance(path, Scalar) and isinstance(path.value, str) else None
+    return _data_file(tree.source, written, override)
 
 
 def analyse(plan: Plan, data_path: str | Path, *, stream: bool | None = None,
@@ -122,12 +118,18 @@ def _import_fitting() -> None:
 
 
 def data_path_for(plan: Plan, override: str | Path | None) -> Path:
-    """The data file: `--data` when given, else `data.path` relative to the plan file."""
+    """The data file (``_data_file``); exit 2 when there is none."""
     from .problems import Exit, Problem, Stop
 
-    if override is not None:
-        return Path(override)
-    if plan.data.path is None:
+    path = _data_file(plan.source, plan.data.path, override)
+    if path is None:
         raise Stop([Problem("the plan names no data file (data.path) and --data was not given",
                             code="no-data")], Exit.PLAN_INVALID)
-    return Path(plan.source).parent / plan.data.path
+    return path
+
+
+def _data_file(source: str, written: str | None, override: str | Path | None) -> Path | None:
+    """`--data` when given, else `data.path` as written, relative to the plan file."""
+    if override is not None:
+        return Path(override)
+    return None if written is None else Path(source).parent / written

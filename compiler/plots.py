@@ -141,8 +141,6 @@ class ResidualSample:
         q1 = q3 = None
         if n >= 2:
             q1, _, q3 = (float(q) for q in quartiles(ordered))
-        else:
-            ordered.sort()
         return cls(n, np.asarray(fitted, dtype=float)[keep],
                    np.asarray(residuals, dtype=float)[keep], ordered[keep], q1, q3)
 
