@@ -15,6 +15,8 @@ Quartiles are numpy.quantile's default: linear interpolation between order stati
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from .bound import BoundData, Table
@@ -56,7 +58,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     # (every branch mispredicted), and gives the same values in the same order.
     picks = [np.flatnonzero(analysed & m) for m in (*group_masks, everyone)]
     # the groups split the analysed rows (bind keeps no row without a declared exposure
-    # level): the overall quartiles can then come from the groups' sorted values
+    # level): the overall cell can then come from the groups' sorted values and moments
     split = grouped and sum(len(rows) for rows in picks[:-1]) == len(picks[-1])
 
     def summary(name: str) -> dict:
@@ -64,18 +66,17 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
         absent = missing_mask(variable, table)
         values = table.columns[variable.name]
 
-        def stats(group: np.ndarray, rows: np.ndarray, sorted_groups=None):
-            if sorted_groups is not None and len(rows) == len(values):
-                picked = values  # every row, and nothing sorts it: the column itself
-            else:
-                picked = values[rows]  # this group's own copy, which _describe may sort
-            out = _describe(variable, picked, sorted_groups)
+        def stats(group: np.ndarray, rows: np.ndarray, parts=None):
+            # parts: the groups' sorted values and moments, when they make up these rows
+            picked = values[rows] if parts is None else None  # a copy _describe may sort
+            out, moments = _describe(variable, picked, parts)
             out["missing"] = int(np.count_nonzero(population & group & absent))
-            return out, picked
+            return out, (picked, moments)
 
         described = [stats(m, rows) for m, rows in zip(group_masks, picks[:-1])]
         groups = [out for out, _ in described]
-        overall, _ = stats(everyone, picks[-1], [p for _, p in described] if split else None)
+        overall, _ = stats(everyone, picks[-1], [part for _, part in described] if split
+                           else None)
         return _entry(analysis, exposure, variable, groups, overall)
 
     variables = list(map(summary, names))
@@ -147,32 +148,73 @@ def _no_rows() -> dict:
             "reason": EMPTY}
 
 
-def _describe(variable: Variable, values: np.ndarray, sorted_groups=None) -> dict:
-    """One cell. A continuous or count ``values`` is sorted in place, unless
-    ``sorted_groups`` (its values split into sorted parts) gives its order statistics."""
-    n = int(len(values))
+def _describe(variable: Variable, values: np.ndarray | None,
+              parts=None) -> tuple[dict, Moments | None]:
+    """One cell, and for a continuous or count variable its moments. ``values`` is sorted in
+    place, unless ``parts`` (its values split into parts, each sorted and with its moments)
+    gives its order statistics and moments instead (``values`` is then None)."""
+    pieces = [values] if parts is None else [part for part, _ in parts]
+    n = sum(len(piece) for piece in pieces)
+
+    def count(value) -> int:
+        return sum(int(np.count_nonzero(piece == value)) for piece in pieces)
+
     if variable.kind == "categorical":
-        return _counted(variable, [np.count_nonzero(values == level)
-                                   for level in variable.levels], n)
+        return _counted(variable, [count(level) for level in variable.levels], n), None
     if variable.kind == "binary":
-        return _counted(variable, [np.count_nonzero(values == 1.0)], n)
+        return _counted(variable, [count(1.0)], n), None
     if n == 0:
-        return _no_rows()
-    out = {"n": n, "mean": finite_or_none(np.mean(values)),
-           "sd": finite_or_none(np.std(values, ddof=1)) if n >= 2 else None}
-    if sorted_groups is None:
+        return _no_rows(), Moments(0, 0.0, 0.0)
+    if parts is None:
+        moments = Moments.of(values)
         # last, because it sorts: ``values`` is this group's own copy (picked by position)
         q1, median, q3 = quartiles(values)
         low, high = values[0], values[-1]
     else:
-        q1, median, q3 = quartiles_of_sorted(sorted_groups)
-        ends = [part[[0, -1]] for part in sorted_groups if len(part)]
+        moments = Moments.pooled([m for _, m in parts])
+        q1, median, q3 = quartiles_of_sorted(pieces)
+        ends = [piece[[0, -1]] for piece in pieces if len(piece)]
         low, high = min(e[0] for e in ends), max(e[1] for e in ends)
-    out.update(median=finite_or_none(median), q1=finite_or_none(q1), q3=finite_or_none(q3),
-               min=finite_or_none(low), max=finite_or_none(high))
+    out = {"n": n, "mean": finite_or_none(moments.mean),
+           "sd": finite_or_none(np.sqrt(moments.m2 / (n - 1))) if n >= 2 else None,
+           "median": finite_or_none(median), "q1": finite_or_none(q1),
+           "q3": finite_or_none(q3), "min": finite_or_none(low), "max": finite_or_none(high)}
     if n < 2:
         out["reason"] = "a standard deviation needs at least two rows"
-    return out
+    return out, moments
+
+
+@dataclass(frozen=True)
+class Moments:
+    """n, the mean and the sum of squared deviations from it, of some values."""
+
+    n: int
+    mean: float
+    m2: float
+
+    @classmethod
+    def of(cls, values: np.ndarray) -> "Moments":
+        """As numpy.mean and numpy.std compute them (pairwise sums; the same bits)."""
+        mean = np.mean(values)
+        deviations = values - mean
+        np.square(deviations, out=deviations)
+        return cls(len(values), float(mean), float(np.sum(deviations)))
+
+    @staticmethod
+    def pooled(parts: list["Moments"]) -> "Moments":
+        """The moments of the parts' values together, without another pass over them
+        (Chan, Golub & LeVeque 1983, Am Stat 37:242-247, the pairwise update): the sample's
+        overall mean and SD from its exposure groups'."""
+        n, mean, m2 = 0, 0.0, 0.0
+        for part in parts:
+            if part.n == 0:
+                continue
+            total = n + part.n
+            delta = part.mean - mean
+            m2 += part.m2 + delta * delta * n * part.n / total
+            mean += delta * part.n / total
+            n = total
+        return Moments(n, mean, m2)
 
 
 class StreamedSummary:

@@ -14,7 +14,7 @@ import pytest
 from planbuilders import make_analysis, make_plan, make_population
 
 from compiler.bind import bind
-from compiler.characteristics import summarise
+from compiler.characteristics import Moments, summarise
 from compiler.read import read
 
 DICTIONARY = {
@@ -130,8 +130,8 @@ def test_the_summary_is_plain_json_without_nan(summary):
 
 
 def test_every_row_analysed_leaves_the_columns_unsorted_and_matches_numpy(tmp_path):
-    # Every row analysed: the overall cell reads the bound column itself, which nothing may
-    # sort. Reference: numpy on the column as written.
+    # Every row analysed: the overall cell comes from the groups' sorted copies and moments,
+    # and nothing may sort the bound column. Reference: numpy on the column as written.
     path = tmp_path / "d.csv"
     y = [5.0, 1.0, 4.0, 2.0, 3.0, 9.0, 0.5]
     arm = ["b", "a", "a", "b", "a", "b", "a"]
@@ -143,7 +143,9 @@ def test_every_row_analysed_leaves_the_columns_unsorted_and_matches_numpy(tmp_pa
     overall = _variable(summarise(plan, plan.analyses[0], bound), "y")["overall"]
     assert list(bound.table.columns["y"]) == y
     assert [overall[k] for k in ("q1", "median", "q3")] == list(np.quantile(y, [0.25, 0.5, 0.75]))
-    assert (overall["mean"], overall["min"], overall["max"]) == (np.mean(y), 0.5, 9.0)
+    assert (overall["min"], overall["max"]) == (0.5, 9.0)
+    assert (overall["mean"], overall["sd"]) == pytest.approx((np.mean(y), np.std(y, ddof=1)),
+                                                             rel=1e-15)
 
 
 def test_a_continuous_exposure_is_summarised_overall_only(tmp_path):
@@ -181,3 +183,31 @@ def test_a_streamed_run_without_columns_gives_a_reason_not_numbers(tmp_path):
     streamed = replace(bound, table=replace(bound.table, columns={}))
     summary = summarise(plan, plan.analyses[0], streamed)
     assert summary["variables"] == [] and "streamed" in summary["reason"]
+
+
+def test_a_group_s_moments_are_numpy_s_mean_and_sd_to_the_bit():
+    # Reference: numpy.mean and numpy.std(ddof=1), which Moments.of computes the same way.
+    values = np.random.default_rng(7).normal(50.0, 10.0, 10_001)
+    moments = Moments.of(values)
+    assert moments.mean == np.mean(values)
+    assert np.sqrt(moments.m2 / (len(values) - 1)) == np.std(values, ddof=1)
+
+
+@pytest.mark.parametrize("offset", [0.0, 1e9])
+def test_pooled_moments_match_exact_arithmetic_on_the_union(offset):
+    # Reference: Python's statistics.fmean and statistics.stdev, which sum in exact rational
+    # arithmetic. The tolerance is the data's conditioning (10·κ·ε, κ = |mean| / SD, at
+    # least 1e-13): at an offset of 1e9 the stored values themselves fix the SD to about
+    # seven digits, and a sum-of-squares formula would lose all of them.
+    import statistics
+
+    rng = np.random.default_rng(11)
+    parts = [offset + rng.normal(0.0, 1.0, 3_000), np.empty(0),
+             offset + rng.normal(0.5, 2.0, 7_001)]
+    union = [float(v) for v in np.concatenate(parts)]
+    pooled = Moments.pooled([Moments.of(p) if len(p) else Moments(0, 0.0, 0.0) for p in parts])
+    mean, sd = statistics.fmean(union), statistics.stdev(union)
+    tolerance = max(1e-13, 10 * abs(mean) / sd * np.finfo(float).eps)
+    assert pooled.n == len(union)
+    assert pooled.mean == pytest.approx(mean, rel=1e-15)
+    assert np.sqrt(pooled.m2 / (pooled.n - 1)) == pytest.approx(sd, rel=tolerance)
