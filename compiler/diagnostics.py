@@ -31,21 +31,33 @@ def variance_inflation(r: np.ndarray, width: int, labels) -> tuple[tuple[str, fl
     return tuple((labels[j + 1], finite_or_none(rows[j] * norms[j])) for j in range(width - 1))
 
 
-def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray | None = None,
-                   squares: np.ndarray | None = None):
-    """Leverages h_i = ‖row i of W½X R⁻¹‖², and Q[:, 1:]ᵀ·squares for Breusch–Pagan, in one
-    pass over the rows."""
+def _leverage_pass(x: np.ndarray, rinv: np.ndarray, root_w: np.ndarray) -> np.ndarray:
+    """Leverages h_i = ‖row i of W½X R⁻¹‖², in one pass over the rows."""
     n = x.shape[0]
     h = np.empty(n)
+    with one_blas_thread(n):
+        for rows in row_chunks(n):
+            q = (x[rows] * root_w[rows, None]) @ rinv
+            h[rows] = np.einsum("ij,ij->i", q, q)
+    return h
+
+
+def _gaussian_pass(x: np.ndarray, y: np.ndarray, beta: np.ndarray, rinv: np.ndarray):
+    """Fitted values, residuals e, leverages h_i = ‖row i of X R⁻¹‖², and Q[:, 1:]ᵀ·e² for
+    Breusch–Pagan, in one pass over the rows: each block of an on-demand design
+    (compiler.design.DesignRows) is built once for all four."""
+    n = x.shape[0]
+    fitted, residuals, h = np.empty(n), np.empty(n), np.empty(n)
     projected = np.zeros(rinv.shape[1] - 1)
     with one_blas_thread(n):
         for rows in row_chunks(n):
-            xc = x[rows] if root_w is None else x[rows] * root_w[rows, None]
-            q = xc @ rinv
+            block = x[rows]
+            fitted[rows] = block @ beta
+            e = np.subtract(y[rows], fitted[rows], out=residuals[rows])
+            q = block @ rinv
             h[rows] = np.einsum("ij,ij->i", q, q)
-            if squares is not None:
-                projected += q[:, 1:].T @ squares[rows]
-    return h, projected
+            projected += q[:, 1:].T @ np.square(e)
+    return fitted, residuals, h, projected
 
 
 def _influential(cooks: np.ndarray, row_ids) -> tuple[Influential, ...]:
@@ -94,20 +106,15 @@ def breusch_pagan(n: int, p: int, squares: np.ndarray, projected: np.ndarray):
 
 def gaussian_diagnostics(design: Design, tier_name: str, r: np.ndarray, width: int,
                          beta: np.ndarray, sigma2: float | None) -> Diagnostics:
-    x = design.x[:, :width]
-    rinv = triangular_inverse(r[:width, :width])
     vif = variance_inflation(r, width, design.labels)
-    fitted = x @ beta
-    residuals = design.y - fitted
     if sigma2 is None or sigma2 <= 0.0:
         return Diagnostics(tier_name, vif, None, None, None, None, None, (),
                            fitted=np.zeros(0), residuals=np.zeros(0),
                            reason="exact fit: zero residual variance; residual diagnostics "
                            "are undefined")
-    squares = residuals ** 2
-    h, projected = _leverage_pass(x, rinv, squares=squares)
-    bp, bp_p = breusch_pagan(x.shape[0], width, squares, projected)
-    del squares
+    fitted, residuals, h, projected = _gaussian_pass(
+        design.x[:, :width], design.y, beta, triangular_inverse(r[:width, :width]))
+    bp, bp_p = breusch_pagan(len(residuals), width, np.square(residuals), projected)
     reasons = []
     # n-long arrays are made in place where the formula allows: on a large sample each is
     # 8 bytes a row, and these are the fit's largest temporaries
@@ -151,7 +158,7 @@ def glm_diagnostics(design: Design, family: str, tier_name: str, r_unweighted: n
                            fitted=np.zeros(0), residuals=np.zeros(0),
                            reason=f"{not_applicable}; {failure}")
     root_w = np.sqrt(weights)
-    h, _ = _leverage_pass(design.x[:, :width], rinv, root_w)
+    h = _leverage_pass(design.x[:, :width], rinv, root_w)
     pearson = (design.y - mu) / root_w
     with np.errstate(divide="ignore", invalid="ignore"):
         cooks = pearson ** 2 * h / (width * (1.0 - h) ** 2)
