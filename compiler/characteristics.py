@@ -10,7 +10,10 @@ as bind (compiler.population.holds). A categorical or binary exposure defines th
 any other exposure is summarised overall only, as a variable of its own.
 
 Quartiles are numpy.quantile's default: linear interpolation between order statistics
-(Hyndman & Fan 1996, definition 7). Everything returned is a plain int, float, str or None.
+(Hyndman & Fan 1996, definition 7). When the exposure groups make up the analysed rows, the
+overall cell is built from the groups' sorted values and moments rather than from another
+pass over each column: the same quartiles to the bit, the mean and SD within an ulp or two.
+Everything returned is a plain int, float, str or None.
 """
 
 from __future__ import annotations
