@@ -59,10 +59,12 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     # Each group's analysed rows as positions, found once for every variable: picking values
     # by position is about ten times faster than by a boolean mask whose pattern is random
     # (every branch mispredicted), and gives the same values in the same order.
-    picks = [np.flatnonzero(analysed & m) for m in (*group_masks, everyone)]
+    picks = [np.flatnonzero(analysed & m) for m in group_masks]
     # the groups split the analysed rows (bind keeps no row without a declared exposure
-    # level): the overall cell can then come from the groups' sorted values and moments
-    split = grouped and sum(len(rows) for rows in picks[:-1]) == len(picks[-1])
+    # level): the overall cell can then come from the groups' sorted values and moments,
+    # and needs no positions of its own
+    split = grouped and sum(len(rows) for rows in picks) == int(np.count_nonzero(analysed))
+    overall_rows = None if split else np.flatnonzero(analysed)
 
     def summary(name: str) -> dict:
         variable = plan.variable(name)
@@ -76,10 +78,10 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
             out["missing"] = int(np.count_nonzero(population & group & absent))
             return out, (picked, moments)
 
-        described = [stats(m, rows) for m, rows in zip(group_masks, picks[:-1])]
+        described = [stats(m, rows) for m, rows in zip(group_masks, picks)]
         groups = [out for out, _ in described]
-        overall, _ = stats(everyone, picks[-1], [part for _, part in described] if split
-                           else None)
+        overall, _ = stats(everyone, overall_rows,
+                           [part for _, part in described] if split else None)
         return _entry(analysis, exposure, variable, groups, overall)
 
     variables = list(map(summary, names))
