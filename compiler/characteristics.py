@@ -19,6 +19,7 @@ Everything returned is a plain int, float, str or None.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import reduce
 
 import numpy as np
 
@@ -169,7 +170,7 @@ def _describe(variable: Variable, values: np.ndarray | None,
     if variable.kind == "binary":
         return _counted(variable, [count(1.0)], n), None
     if n == 0:
-        return _no_rows(), Moments(0, 0.0, 0.0)
+        return _no_rows(), Moments()
     if parts is None:
         moments = Moments.of(values)
         # last, because it sorts: ``values`` is this group's own copy (picked by position)
@@ -180,8 +181,7 @@ def _describe(variable: Variable, values: np.ndarray | None,
         q1, median, q3 = quartiles_of_sorted(pieces)
         ends = [piece[[0, -1]] for piece in pieces if len(piece)]
         low, high = min(e[0] for e in ends), max(e[1] for e in ends)
-    out = {"n": n, "mean": finite_or_none(moments.mean),
-           "sd": finite_or_none(np.sqrt(moments.m2 / (n - 1))) if n >= 2 else None,
+    out = {"n": n, **moments.cell(),
            "median": finite_or_none(median), "q1": finite_or_none(q1),
            "q3": finite_or_none(q3), "min": finite_or_none(low), "max": finite_or_none(high)}
     if n < 2:
@@ -191,11 +191,13 @@ def _describe(variable: Variable, values: np.ndarray | None,
 
 @dataclass(frozen=True)
 class Moments:
-    """n, the mean and the sum of squared deviations from it, of some values."""
+    """n, the mean and the sum of squared deviations from it, of some values: what a cell's
+    mean and SD need, in memory (a group's values, or the groups' pooled) and streamed (a
+    group's batches, merged)."""
 
-    n: int
-    mean: float
-    m2: float
+    n: int = 0
+    mean: float = 0.0
+    m2: float = 0.0
 
     @classmethod
     def of(cls, values: np.ndarray) -> "Moments":
@@ -205,28 +207,34 @@ class Moments:
         np.square(deviations, out=deviations)
         return cls(len(values), float(mean), float(np.sum(deviations)))
 
+    def merge(self, other: "Moments") -> "Moments":
+        """The moments of both parts' values together, without another pass over them
+        (Chan, Golub & LeVeque 1983, Am Stat 37:242-247, the pairwise update)."""
+        if other.n == 0:
+            return self
+        if self.n == 0:
+            return other
+        n = self.n + other.n
+        delta = other.mean - self.mean
+        return Moments(n, self.mean + delta * other.n / n,
+                       self.m2 + other.m2 + delta * delta * self.n * other.n / n)
+
     @staticmethod
     def pooled(parts: list["Moments"]) -> "Moments":
-        """The moments of the parts' values together, without another pass over them
-        (Chan, Golub & LeVeque 1983, Am Stat 37:242-247, the pairwise update): the sample's
-        overall mean and SD from its exposure groups'."""
-        n, mean, m2 = 0, 0.0, 0.0
-        for part in parts:
-            if part.n == 0:
-                continue
-            total = n + part.n
-            delta = part.mean - mean
-            m2 += part.m2 + delta * delta * n * part.n / total
-            mean += delta * part.n / total
-            n = total
-        return Moments(n, mean, m2)
+        """The parts merged in order: the sample's overall moments from its groups'."""
+        return reduce(Moments.merge, parts, Moments())
+
+    def cell(self) -> dict:
+        """A cell's mean and SD (n − 1 divisor; None below two values)."""
+        return {"mean": finite_or_none(self.mean),
+                "sd": finite_or_none(np.sqrt(self.m2 / (self.n - 1))) if self.n >= 2 else None}
 
 
 class StreamedSummary:
     """``summarise`` for a streamed run, as a reduction over the batches of the bind pass.
 
-    Each batch adds its analysed rows' counts, sums of moments (merged as in
-    stream_diagnostics.CentralMoments), minima and maxima per group and variable, and its
+    Each batch adds its analysed rows' counts, moments (``Moments.merge``), minima and
+    maxima per group and variable, and its
     missing counts in the population; ``result`` gives summarise's layout, with the medians
     and quartiles None and NO_QUARTILES as the reason (they need every value at once).
     """
@@ -244,8 +252,6 @@ class StreamedSummary:
         self.parts = {name: [_Part() for _ in range(width)] for name in self.names}
 
     def add(self, table: Table, sample) -> None:
-        from .stream_diagnostics import CentralMoments
-
         analysed = np.zeros(table.rows_read, bool)
         analysed[sample.rows] = True
         population = _population(self.plan, self.analysis, table)
@@ -268,7 +274,7 @@ class StreamedSummary:
                 elif variable.kind == "binary":
                     part.count([np.count_nonzero(picked == 1.0)])
                 elif len(picked):
-                    part.moments = part.moments.merge(CentralMoments.of(picked))
+                    part.moments = part.moments.merge(Moments.of(picked))
                     part.low = min(part.low, float(np.min(picked)))
                     part.high = max(part.high, float(np.max(picked)))
 
@@ -280,12 +286,10 @@ class StreamedSummary:
                                 n)
             if n == 0:
                 return _no_rows()
-            moments = part.moments
             reasons = [NO_QUARTILES]
             if n < 2:
                 reasons.insert(0, "a standard deviation needs at least two rows")
-            return {"n": n, "mean": finite_or_none(moments.mean),
-                    "sd": finite_or_none(np.sqrt(moments.m2 / (n - 1))) if n >= 2 else None,
+            return {"n": n, **part.moments.cell(),
                     "min": finite_or_none(part.low), "max": finite_or_none(part.high),
                     "median": None, "q1": None, "q3": None, "reason": "; ".join(reasons)}
 
@@ -311,11 +315,9 @@ class _Part:
     """One group's running sums for one variable."""
 
     def __init__(self):
-        from .stream_diagnostics import CentralMoments
-
         self.missing = 0
         self.counts: np.ndarray | None = None  # per declared level (categorical) or of 1s
-        self.moments = CentralMoments()
+        self.moments = Moments()
         self.low, self.high = np.inf, -np.inf
 
     def count(self, found: list[int]) -> None:
