@@ -64,19 +64,9 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
         source = read._HashingReader(raw, hashing=hashing)
         facts.header = read._header(source.peek_record(), delimiter, path)
         facts.present = read._present(plan, facts.header)
-        text = pa.string()
-        types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
-                 else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
-                 for v in plan.variables if v.name in facts.present}
-        include = list(facts.present) or facts.header[:1]
         try:
-            reader = pacsv.open_csv(
-                source,
-                read_options=pacsv.ReadOptions(use_threads=True, block_size=_batch_bytes()),
-                parse_options=pacsv.ParseOptions(delimiter=delimiter),
-                convert_options=pacsv.ConvertOptions(
-                    include_columns=include, column_types=types or {include[0]: text},
-                    null_values=list(plan.data.missing), strings_can_be_null=True))
+            reader = pacsv.open_csv(source, **read.csv_options(
+                plan, facts.present, delimiter, _batch_bytes(), numbers_as_text))
             offset = 0
             for batch in _gathered(reader):
                 yield offset, _table(plan, facts, batch, offset, fmt)

@@ -54,14 +54,17 @@ class Problem:
         return self.severity == "error"
 
     def format(self) -> str:
+        """The problem as printed: one line, and a hint line when there is a hint."""
+        message = _one_line(self.message)
         if self.place is not None:
-            head = f"{self.place}: {self.severity}: {self.message}"
+            head = f"{self.place}: {self.severity}: {message}"
         elif self.column is not None:
-            head = f"data: {self.column}: {self.message}" if self.is_error else (
-                f"data: {self.column}: {self.severity}: {self.message}")
+            column = _one_line(self.column)
+            head = f"data: {column}: {message}" if self.is_error else (
+                f"data: {column}: {self.severity}: {message}")
         else:
-            head = f"{self.severity}: {self.message}"
-        return head if not self.hint else f"{head}\n  hint: {self.hint}"
+            head = f"{self.severity}: {message}"
+        return head if not self.hint else f"{head}\n  hint: {_one_line(self.hint)}"
 
     def as_json(self) -> dict:
         out: dict = {"severity": self.severity, "message": self.message, "code": self.code}
@@ -74,6 +77,18 @@ class Problem:
         if self.details:
             out["details"] = self.details
         return out
+
+
+def _one_line(text: str) -> str:
+    """``text`` with its control characters and line separators escaped (``\\r``,
+    ``\\x00``, ``\\u2028``): a message may quote a data file's bytes, and printed it must
+    stay on its line and leave the terminal alone. JSON output escapes them itself."""
+    return "".join(c.encode("unicode_escape").decode("ascii") if _is_control(c) else c
+                   for c in text)
+
+
+def _is_control(c: str) -> bool:
+    return c < " " or "\x7f" <= c <= "\x9f" or c in "\u2028\u2029"
 
 
 class Stop(Exception):

@@ -48,9 +48,12 @@ NUMBER = r"^[+-]?((\d+\.?\d*|\.\d+)([eE][+-]?\d+)?|(?i:inf|infinity|nan))$"
 def read(plan: Plan, path: str | Path) -> Table:
     """The declared columns of the data file, typed, with the file's sha256 and size."""
     path = Path(path)
-    fmt = data_format(plan, path)
     if not path.is_file():
-        raise _stop(f"data file {path} not found", "data-file-missing")
+        what = ("a folder" if path.is_dir() else "not a regular file") if path.exists() else None
+        raise _stop(f"data file {path} not found" if what is None else
+                    f"data file {path} is {what}: give the path of the data file itself",
+                    "data-file-missing")
+    fmt = data_format(plan, path)
     reader = {"csv": _read_delimited, "tsv": _read_delimited, "parquet": _read_parquet,
               "xpt": _read_pandas, "dta": _read_pandas}[fmt]
     try:
@@ -183,20 +186,9 @@ def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool)
     with path.open("rb") as raw:
         header = _header(_HashingReader(raw, hashing=False).peek_record(), delimiter, path)
     present = _present(plan, header)
-    text = pa.string()
-    types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
-             else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
-             for v in plan.variables if v.name in present}
-    # include_columns=[] would mean every column; read one as text to count the rows
-    include = list(present) or header[:1]
     with _Digest(path) as digest:
-        table = pacsv.read_csv(
-            str(path), memory_pool=_parse_pool(),
-            read_options=pacsv.ReadOptions(use_threads=True, block_size=BLOCK),
-            parse_options=pacsv.ParseOptions(delimiter=delimiter),
-            convert_options=pacsv.ConvertOptions(
-                include_columns=include, column_types=types or {include[0]: text},
-                null_values=list(plan.data.missing), strings_can_be_null=True))
+        table = pacsv.read_csv(str(path), memory_pool=_parse_pool(),
+                               **csv_options(plan, present, delimiter, BLOCK, numbers_as_text))
     if _identity(path) != before:
         raise _stop(f"data file {path} changed while it was being read; read it again once "
                     "nothing is writing to it", "data-changed")
@@ -264,10 +256,40 @@ def _release_parse_memory() -> None:
 
 
 def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
+    """The column names of the first record. Line ends are read as pyarrow reads them (a
+    lone CR ends a line too), so both see the same header."""
     if not prefix.strip():
         raise _stop(f"data file {path} is empty: there is no header row", "data-empty")
     text = prefix.decode("utf-8-sig", errors="replace")
-    return next(csv.reader(io.StringIO(text), delimiter=delimiter), [])
+    try:
+        return next(csv.reader(io.StringIO(text, newline=""), delimiter=delimiter), [])
+    except csv.Error as error:  # e.g. a NUL byte, or a first field over csv's size limit
+        raise _stop(f"cannot read {path} as {'tsv' if delimiter == chr(9) else 'csv'}: "
+                    f"its header row is not delimited text ({error})", "data-unreadable") from None
+
+
+def csv_options(plan: Plan, present: list[str], delimiter: str, block_size: int,
+                numbers_as_text: bool) -> dict:
+    """pyarrow's options for reading the declared columns ``present`` in the header, typed
+    by the dictionary (numeric columns as text when ``numbers_as_text``, to name every value
+    that is not a number). With none present, the rows are counted from the first column by
+    position: include_columns=[] would mean every column, and a name from a header that is
+    not UTF-8 would not match pyarrow's own reading of it."""
+    import pyarrow.csv as pacsv
+
+    text = pa.string()
+    types = {v.name: (text if numbers_as_text else pa.float64()) if v.is_numeric
+             else pa.dictionary(pa.int32(), text) if v.kind == "categorical" else text
+             for v in plan.variables if v.name in present}
+    read_options = {"use_threads": True, "block_size": block_size}
+    if not present:
+        read_options.update(autogenerate_column_names=True, skip_rows=1)
+        present, types = ["f0"], {"f0": text}
+    return {"read_options": pacsv.ReadOptions(**read_options),
+            "parse_options": pacsv.ParseOptions(delimiter=delimiter),
+            "convert_options": pacsv.ConvertOptions(
+                include_columns=list(present), column_types=types,
+                null_values=list(plan.data.missing), strings_can_be_null=True)}
 
 
 def _present(plan: Plan, header: list[str]) -> list[str]:
@@ -288,6 +310,16 @@ def _ragged(plan: Plan, path: Path, fmt: str, error: Exception) -> Stop:
     module, which tracks physical lines.
     """
     delimiter = "\t" if fmt == "tsv" else ","
+    try:
+        found = _ragged_line(path, delimiter)
+    except csv.Error as reason:  # a record Python's csv module cannot take: say why
+        return _stop(f"cannot read {path} as {fmt}: {reason}", "data-unreadable")
+    first = str(error).strip().splitlines()[0]
+    return found or _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
+
+
+def _ragged_line(path: Path, delimiter: str) -> Stop | None:
+    """The problem naming the first record whose field count differs from the header's."""
     with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
         records = csv.reader(f, delimiter=delimiter)
         header = next(records, [])
@@ -303,8 +335,7 @@ def _ragged(plan: Plan, path: Path, fmt: str, error: Exception) -> Stop:
                     details={"line": line, "fields": len(fields), "expected": len(header)})],
                     Exit.DATA_CONTRACT)
             line = records.line_num + 1
-    first = str(error).strip().splitlines()[0]
-    return _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
+    return None
 
 
 # --- Parquet, xpt, dta -------------------------------------------------------------------

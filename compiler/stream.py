@@ -35,9 +35,9 @@ def streaming_format(plan: Plan, data_path: str | Path, forced: bool) -> str | N
     from .read import data_format
 
     path = Path(data_path)
-    fmt = data_format(plan, path)
     if not path.is_file():
         return None  # read.read reports it
+    fmt = data_format(plan, path)
     return fmt if should_stream(plan, str(path), fmt, forced) else None
 
 

@@ -173,6 +173,15 @@ def test_a_missing_file_is_a_clear_error(tmp_path):
     assert "not found" in stop.problems[0].message
 
 
+def test_a_folder_or_a_pipe_is_not_a_data_file(tmp_path):
+    import os
+
+    (tmp_path / "folder.csv").mkdir()
+    os.mkfifo(tmp_path / "pipe.csv")
+    assert "is a folder" in _stop(PLAN, tmp_path / "folder.csv").problems[0].message
+    assert "is not a regular file" in _stop(PLAN, tmp_path / "pipe.csv").problems[0].message
+
+
 def test_an_unknown_extension_asks_for_data_format(tmp_path):
     stop = _stop(PLAN, _file(tmp_path, "d.txt", ROWS))
     assert "data.format" in stop.problems[0].message
@@ -186,6 +195,51 @@ def test_a_file_that_is_not_its_format_is_a_clear_error(tmp_path):
 def test_a_file_not_in_utf8_says_so(tmp_path):
     stop = _stop(PLAN, _file(tmp_path, "d.csv", ROWS.replace("walk", "w\u00e4lk").encode("latin-1")))
     assert "UTF-8" in stop.problems[0].hint
+
+
+def test_a_header_python_csv_cannot_take_is_a_clear_error(tmp_path):
+    # a first field over the csv module's field size limit (131,072 characters)
+    stop = _stop(PLAN, _file(tmp_path, "d.csv", b"p" * 200_000 + b"\n1\n"))
+    assert stop.problems[0].code == "data-unreadable"
+    assert "header row is not delimited text" in stop.problems[0].message
+
+
+def test_a_lone_carriage_return_ends_the_header_as_it_does_for_pyarrow(tmp_path):
+    # old Mac line ends: pyarrow reads CR as a line end, and so does the header's reading
+    table = read(PLAN, _file(tmp_path, "d.csv", ROWS.replace("\n", "\r")))
+    assert table.rows_read == 4
+    assert list(table.columns["pid"]) == ["007", "012", "013", "101"]
+
+
+def test_a_header_with_none_of_the_declared_columns_still_counts_rows(tmp_path):
+    # a header that is not UTF-8 is read by pyarrow with other names than Python gives it,
+    # so the rows are counted from the first column by position, not by name
+    content = b"\xff\xfe\x81,\x9c\n1,2\n3,4\n5,6\n"
+    table = read(PLAN, _file(tmp_path, "d.csv", content))
+    assert table.rows_read == 3 and table.columns == {}
+    stop = _bind_stop(table)
+    assert {p.column for p in stop.problems} >= set(DICTIONARY)
+
+
+def test_random_bytes_are_a_clear_error_not_a_fault(tmp_path):
+    # seeded noise: whatever the bytes, the read stops with exit 3 and a one-line message
+    rng = np.random.default_rng(20261203)
+    for attempt in range(40):
+        path = _file(tmp_path, f"noise{attempt}.csv", rng.bytes(5000))
+        try:
+            table = read(PLAN, path)
+        except Stop as stop:
+            assert stop.exit_code == Exit.DATA_CONTRACT
+            assert all("\n" not in p.format().split("\n  hint:")[0] for p in stop.problems)
+        else:
+            _bind_stop(table)
+
+
+def _bind_stop(table) -> Stop:
+    with pytest.raises(Stop) as caught:
+        bind(PLAN, table)
+    assert caught.value.exit_code == Exit.DATA_CONTRACT
+    return caught.value
 
 
 def test_text_in_a_numeric_parquet_column_is_kept_for_the_contract(tmp_path):
