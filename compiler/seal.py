@@ -46,6 +46,24 @@ def refuse_existing(target: Path) -> None:
                             "choose another --out", code="bundle-exists")], Exit.PLAN_INVALID)
 
 
+def check_target(target: Path) -> None:
+    """Refuse, before any work, a bundle folder that exists or could not be made: the
+    nearest folder above it that exists must be a folder this process may write into."""
+    target = Path(target)
+    refuse_existing(target)
+    above = target.parent  # ends at "." or the root, which exist
+    while not above.exists() and not above.is_symlink():
+        above = above.parent
+    if not above.is_dir():
+        why = f"{above} is not a folder"
+    elif not os.access(above, os.W_OK | os.X_OK):
+        why = f"the folder {above} is not writable"
+    else:
+        return
+    raise Stop([Problem(f"bundle {target} cannot be written: {why}", hint="choose another --out",
+                        code="bundle-unwritable")], Exit.PLAN_INVALID)
+
+
 def load_signing_key(path: str | Path):
     """An Ed25519 private key from a PEM file (unencrypted); exit 2 when it is not one."""
     from cryptography.hazmat.primitives import serialization

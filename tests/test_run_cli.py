@@ -150,6 +150,16 @@ def test_run_into_an_existing_bundle_is_refused_and_changes_nothing(study, capsy
     assert files_of(out) == before
 
 
+def test_a_bundle_under_a_file_is_refused_before_any_work(fresh, tmp_path, capsys, monkeypatch):
+    plan, data = fresh
+    (tmp_path / "taken").write_text("a file, not a folder\n")
+    monkeypatch.setattr("compiler.pipeline.analyse", None)  # reaching the analysis fails
+    assert run(plan, data, tmp_path / "taken" / "b", "--unlocked") == Exit.PLAN_INVALID
+    err = capsys.readouterr().err
+    assert f"{tmp_path / 'taken'} is not a folder" in err and "internal" not in err
+    assert (tmp_path / "taken").read_text() == "a file, not a folder\n"
+
+
 def test_run_without_a_lock_exits_4_and_writes_nothing(fresh, tmp_path, capsys):
     plan, data = fresh
     assert run(plan, data, tmp_path / "out" / "b") == Exit.LOCK

@@ -109,3 +109,21 @@ def test_a_key_that_is_not_ed25519_is_refused(tmp_path):
         seal.load_signing_key(path)
     assert "not an Ed25519 key" in caught.value.problems[0].message
 
+
+
+def test_a_target_under_a_file_or_a_folder_not_writable_is_refused(tmp_path, monkeypatch):
+    (tmp_path / "taken").write_text("x")
+    with pytest.raises(Stop) as caught:
+        seal.check_target(tmp_path / "taken" / "deeper" / "study")
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    assert f"{tmp_path / 'taken'} is not a folder" in caught.value.problems[0].message
+    # a folder this process may not write into (faked: the tests may run as root)
+    monkeypatch.setattr(seal.os, "access", lambda path, mode: False)
+    with pytest.raises(Stop) as caught:
+        seal.check_target(tmp_path / "new" / "study")
+    assert f"the folder {tmp_path} is not writable" in caught.value.problems[0].message
+
+
+def test_a_target_whose_folders_are_yet_to_be_made_is_accepted(tmp_path):
+    seal.check_target(tmp_path / "a" / "b" / "study")
+    assert not (tmp_path / "a").exists()  # the check makes nothing
