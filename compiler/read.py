@@ -263,9 +263,9 @@ def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
     text = prefix.decode("utf-8-sig", errors="replace")
     try:
         return next(csv.reader(io.StringIO(text, newline=""), delimiter=delimiter), [])
-    except csv.Error as error:  # e.g. a NUL byte, or a first field over csv's size limit
-        raise _stop(f"cannot read {path} as {'tsv' if delimiter == chr(9) else 'csv'}: "
-                    f"its header row is not delimited text ({error})", "data-unreadable") from None
+    except csv.Error as error:  # e.g. a first field over the csv module's size limit
+        raise _stop(f"cannot read {path}: its header row is not delimited text ({error})",
+                    "data-unreadable") from None
 
 
 def csv_options(plan: Plan, present: list[str], delimiter: str, block_size: int,
