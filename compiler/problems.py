@@ -54,17 +54,17 @@ class Problem:
         return self.severity == "error"
 
     def format(self) -> str:
-        """The problem as printed: one line, and a hint line when there is a hint."""
-        message = _one_line(self.message)
+        """The problem as printed, with a hint line when there is a hint."""
+        message = _printable(self.message)
         if self.place is not None:
             head = f"{self.place}: {self.severity}: {message}"
         elif self.column is not None:
-            column = _one_line(self.column)
+            column = _printable(self.column, lines=False)
             head = f"data: {column}: {message}" if self.is_error else (
                 f"data: {column}: {self.severity}: {message}")
         else:
             head = f"{self.severity}: {message}"
-        return head if not self.hint else f"{head}\n  hint: {_one_line(self.hint)}"
+        return head if not self.hint else f"{head}\n  hint: {_printable(self.hint)}"
 
     def as_json(self) -> dict:
         out: dict = {"severity": self.severity, "message": self.message, "code": self.code}
@@ -79,12 +79,13 @@ class Problem:
         return out
 
 
-def _one_line(text: str) -> str:
-    """``text`` with its control characters and line separators escaped (``\\r``,
-    ``\\x00``, ``\\u2028``): a message may quote a data file's bytes, and printed it must
-    stay on its line and leave the terminal alone. JSON output escapes them itself."""
-    return "".join(c.encode("unicode_escape").decode("ascii") if _is_control(c) else c
-                   for c in text)
+def _printable(text: str, lines: bool = True) -> str:
+    """``text`` with its control characters escaped (``\\r``, ``\\x1b``, ``\\u2028``)
+    but for the line breaks of a message that lists things: a message may quote a data
+    file's bytes, and printed it must keep its lines and leave the terminal alone. JSON
+    output escapes them itself. A column name (``lines=False``) keeps no line break."""
+    return "".join(c.encode("unicode_escape").decode("ascii")
+                   if _is_control(c) and not (lines and c == "\n") else c for c in text)
 
 
 def _is_control(c: str) -> bool:
