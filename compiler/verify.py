@@ -177,7 +177,7 @@ def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
         return [], notes + [f"re-run on {data_path}: results.json is byte-identical"]
     new = json.loads(to_bytes(new))
     changed = []
-    for part in [*READING_ORDER, *sorted(set(old) | set(new) - set(READING_ORDER))]:
+    for part in [*READING_ORDER, *sorted((set(old) | set(new)) - set(READING_ORDER))]:
         changed += differences(old.get(part), new.get(part), path=part)
     shown = changed[:MAX_DIFFERENCES]
     if len(changed) > len(shown):

@@ -134,6 +134,11 @@ def test_verify_with_changed_data_names_the_values_that_differ(study, tmp_path, 
     assert f"data.sha256: {_sha(data)} → {_sha(changed)}" in err
     assert "decisions[H1].numbers.estimate: " in err
     assert "more\n" in err  # the list is bounded
+    assert err.count(f"data.sha256: {_sha(data)}") == 1  # each difference once
+    assert main(["--json", "verify", str(out), "--data", str(changed)]) == Exit.NOT_INTACT
+    found = json.loads(capsys.readouterr().out)["problems"]
+    listed = next(p["details"] for p in found if p["code"] == "results-differ")
+    assert len(listed["differences"]) == len(set(listed["differences"])) == listed["count"]
 
 
 def _sha(path: Path) -> str:
