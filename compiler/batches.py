@@ -47,13 +47,19 @@ def batch_tables(plan: Plan, path: Path, fmt: str, facts: FileFacts, *,
                  numbers_as_text: bool = False, hashing: bool = True
                  ) -> Iterator[tuple[int, Table]]:
     """(offset, batch Table) for every batch, in file order; ``facts`` is complete once the
-    iterator is exhausted."""
+    iterator is exhausted. A file its reader cannot take stops the pass as read.read stops."""
     if fmt == "parquet":
-        yield from _parquet(plan, path, facts, hashing)
+        batches = _parquet(plan, path, facts, hashing)
     elif fmt in ("xpt", "dta"):
-        yield from _transport_or_stata(plan, path, fmt, facts, hashing)
+        batches = _transport_or_stata(plan, path, fmt, facts, hashing)
     else:
-        yield from _delimited(plan, path, fmt, facts, numbers_as_text, hashing)
+        batches = _delimited(plan, path, fmt, facts, numbers_as_text, hashing)
+    while True:  # each step under the guard, not the caller's work between the steps
+        with read.unreadable_as_stop(path, fmt):
+            step = next(batches, None)
+        if step is None:
+            return
+        yield step
 
 
 def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):

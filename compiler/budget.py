@@ -80,9 +80,7 @@ def should_stream(plan: Plan, data_path: str, data_format: str, forced: bool) ->
     if forced:
         return True
     if data_format == "parquet":
-        import pyarrow.parquet as pq
-
-        rows = pq.ParquetFile(data_path).metadata.num_rows
+        rows = _parquet_rows(data_path)
     elif data_format in ("xpt", "dta"):
         rows = _declared_rows(data_path, data_format)
     else:
@@ -90,18 +88,34 @@ def should_stream(plan: Plan, data_path: str, data_format: str, forced: bool) ->
     return in_memory_bytes(plan, rows) > memory_budget()
 
 
+def _parquet_rows(data_path: str) -> int:
+    """The row count in a Parquet file's footer; a file that is not Parquet counts as empty
+    here, and read reports it."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    try:
+        return pq.ParquetFile(data_path).metadata.num_rows
+    except (OSError, pa.ArrowException):
+        return 0
+
+
 def _declared_rows(data_path: str, data_format: str) -> int:
     """The row count a SAS transport or Stata file's header gives (pandas reads the header
     only); a file pandas cannot open counts as empty here, and read reports it."""
+    import warnings
+
     import pandas as pd
 
     try:
-        if data_format == "xpt":
-            reader = pd.read_sas(data_path, format="xport", encoding="utf-8", iterator=True)
-        else:
-            reader = pd.read_stata(data_path, iterator=True)
-        with reader:
-            return int(reader.nobs)
+        with warnings.catch_warnings():  # "may be corrupted": read reports that too
+            warnings.simplefilter("ignore", UserWarning)
+            if data_format == "xpt":
+                reader = pd.read_sas(data_path, format="xport", encoding="utf-8", iterator=True)
+            else:
+                reader = pd.read_stata(data_path, iterator=True)
+            with reader:
+                return int(reader.nobs)
     except Exception:  # noqa: BLE001 - read.read names the problem with the file
         return 0
 

@@ -18,9 +18,11 @@ CSV/TSV and Parquet are read with pyarrow, SAS transport (xpt) and Stata (dta) w
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import hashlib
 import io
+import struct
 import threading
 from pathlib import Path
 
@@ -56,16 +58,51 @@ def read(plan: Plan, path: str | Path) -> Table:
     fmt = data_format(plan, path)
     reader = {"csv": _read_delimited, "tsv": _read_delimited, "parquet": _read_parquet,
               "xpt": _read_pandas, "dta": _read_pandas}[fmt]
+    with unreadable_as_stop(path, fmt):
+        read_columns = reader(plan, path, fmt)
+    with unreadable_as_stop(path, fmt, pa.ArrowException):  # a column arrow cannot cast
+        return _converted(plan, path, fmt, *read_columns)
+
+
+# What the readers raise when a file is not what its format says (struct.error: pandas'
+# Stata reader on a file shorter than its header; arrow's exceptions include the casts a
+# Parquet column of another type, a timestamp say, has not)
+UNREADABLE = (OSError, ValueError, KeyError, EOFError, struct.error, NotImplementedError,
+              UnicodeError, pa.ArrowException)
+
+
+@contextlib.contextmanager
+def unreadable_as_stop(path: Path, fmt: str, errors: tuple = UNREADABLE):
+    """Turn a reading library's complaint into the one-line problem ``cannot read PATH as
+    FORMAT: ...`` (exit 3), and pandas' warning that a SAS transport file "may be corrupted"
+    (it is cut short: pandas reads the whole records it finds and says no more) into the same.
+    ``errors`` are the exception types taken as the file's fault."""
+    import warnings
+
     try:
-        header, arrays, rows, digest, size = reader(plan, path, fmt)
+        with warnings.catch_warnings():
+            warnings.filterwarnings("error", message=".*may be corrupted", category=UserWarning)
+            yield
     except Stop:
         raise
-    except (OSError, ValueError, KeyError, EOFError, pa.ArrowException) as error:
-        # the library's complaint, in one line: the file is not what its format says
-        first = str(error).strip().splitlines()[0] if str(error).strip() else type(error).__name__
-        hint = next((h for cue, h in HINTS.items() if cue in first), None)
-        raise Stop([Problem(f"cannot read {path} as {fmt}: {first}", hint=hint,
-                            code="data-unreadable")], Exit.DATA_CONTRACT) from None
+    except UserWarning as warning:
+        raise _unreadable(path, fmt, "the file ends inside a record: it is cut short "
+                          f"(pandas: {str(warning).rstrip('.')})") from None
+    except errors as error:
+        text = str(error).strip()
+        raise _unreadable(path, fmt, text.splitlines()[0] if text else type(error).__name__) \
+            from None
+
+
+def _unreadable(path: Path, fmt: str, complaint: str) -> Stop:
+    hint = next((h for cue, h in HINTS.items() if cue in complaint), None)
+    return Stop([Problem(f"cannot read {path} as {fmt}: {complaint}", hint=hint,
+                         code="data-unreadable")], Exit.DATA_CONTRACT)
+
+
+def _converted(plan: Plan, path: Path, fmt: str, header: list[str], arrays: dict, rows: int,
+               digest: str, size: int) -> Table:
+    """The reader's arrow columns as the Table of the dictionary's kinds."""
     declared = {v.name for v in plan.variables}
     columns: dict[str, np.ndarray] = {}
     unparsed: dict[str, Tally] = {}

@@ -340,3 +340,49 @@ def test_float_blocks_match_pyarrows_own_conversion_at_any_offset(offset):
     valid = _float_block(block, out)
     np.testing.assert_array_equal(out, block.to_numpy(zero_copy_only=False))
     np.testing.assert_array_equal(valid, block.is_valid().to_numpy(zero_copy_only=False))
+
+
+# --- files that are not what their format says, in memory and streamed ----------------------
+
+def _cut(fraction):
+    return lambda data: data[: int(len(data) * fraction)]
+
+
+def _timestamp_age(path):
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    table = pq.read_table(path)
+    ages = pa.array(pd.to_datetime(np.arange(table.num_rows) * 1e9))
+    pq.write_table(table.set_column(table.schema.get_field_index("age"), "age", ages), path)
+
+
+BROKEN = {  # file name: how a good file of that format is broken
+    "half.parquet": _cut(0.5),
+    "empty.parquet": _cut(0),
+    "tiny.dta": lambda data: data[:8],  # shorter than the Stata header
+    "half.dta": _cut(0.5),
+    "half.xpt": _cut(0.6),  # pandas reads the whole records it finds and only warns
+    "timestamp-age.parquet": None,
+}
+
+
+@pytest.mark.parametrize("name", sorted(BROKEN))
+@pytest.mark.parametrize("streamed", [False, True])
+def test_a_broken_file_is_named_with_exit_3_in_memory_and_streamed(tmp_path, name, streamed):
+    from compiler.pipeline import analyse
+
+    path = tmp_path / name
+    frame = pd.concat([_frame()] * 40, ignore_index=True)  # 200 rows: records to cut into
+    frame["pid"] = [f"{i:03d}" for i in range(len(frame))]
+    _write(frame, path)
+    if BROKEN[name] is None:
+        _timestamp_age(path)
+    else:
+        path.write_bytes(BROKEN[name](path.read_bytes()))
+    with pytest.raises(Stop) as caught:
+        analyse(SHORT, path, stream=streamed)
+    assert caught.value.exit_code == Exit.DATA_CONTRACT
+    assert caught.value.problems[0].message.startswith(f"cannot read {path} as ")
+    if name == "half.xpt":
+        assert "cut short" in caught.value.problems[0].message
