@@ -134,11 +134,13 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("rehearse", parents=[common], help="rehearse the plan before unblinding",
                        description="Run the whole pipeline on synthetic data made from the "
-                                   "dictionary, or on real data with one column scrambled.")
+                                   "dictionary, or on real data with the exposure column "
+                                   "scrambled.")
     p.add_argument("plan", metavar="PLAN")
     p.add_argument("--out", metavar="DIR", help="bundle folder (default out/<study id>-rehearsal)")
     p.add_argument("--data", metavar="FILE", help="blinded real data (with --scramble)")
-    p.add_argument("--scramble", metavar="VAR", help="the column to permute (usually the exposure)")
+    p.add_argument("--scramble", metavar="VAR",
+                   help="the exposure column to permute (every analysis must have it)")
     p.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0)")
     p.add_argument("--rows", type=int, metavar="N", help="synthetic rows (default data.expected_rows or 500)")
     p.add_argument("--effect", type=float, default=0.0, metavar="X",

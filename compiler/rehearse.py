@@ -70,7 +70,9 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
 
 
 def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table:
-    """The real table with one column permuted over all rows by the seed; the rest untouched.
+    """The real table with the exposure column permuted over all rows by the seed; the rest
+    untouched. Only the exposure may be scrambled, and only when every analysis has it: any
+    other column would leave the real exposure effects in the rehearsal's report.
 
     The permutation keeps the column's values, so the data contract sees the real values; the
     file digest stays the real file's, naming what was scrambled.
@@ -84,6 +86,18 @@ def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table
             f"--scramble {variable}: {variable} {where}", code="scramble-unknown",
             hint="name a declared variable, usually an analysis' exposure: "
                  + ", ".join(dict.fromkeys(a.exposure for a in plan.analyses)))],
+            Exit.PLAN_INVALID)
+    exposures = list(dict.fromkeys(a.exposure for a in plan.analyses))
+    if exposures != [variable]:
+        others = [e for e in exposures if e != variable]
+        why = (f"{variable} is not the exposure of any analysis, so the rehearsal would show "
+               "the real exposure effects" if len(others) == len(exposures) else
+               f"the exposure {', '.join(others)} of other analyses would stay unscrambled")
+        raise Stop([Problem(
+            f"--scramble {variable}: {why}", code="scramble-not-exposure",
+            hint=f"scramble the exposure ({exposures[0]})" if len(exposures) == 1 else
+                 "a scrambled rehearsal blinds one exposure, and this plan has several "
+                 f"({', '.join(exposures)}): rehearse on synthetic data (no --data)")],
             Exit.PLAN_INVALID)
     order = np.random.default_rng(seed).permutation(table.rows_read)
     columns = dict(table.columns)

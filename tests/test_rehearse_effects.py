@@ -79,9 +79,31 @@ def test_scrambling_permutes_the_named_column_by_the_seed_and_nothing_else():
 
 def test_scrambling_keeps_the_columns_values():
     table = real_table()
-    scrambled = scrambled_table(make_plan(), table, "age", seed=1)
-    assert np.array_equal(np.sort(scrambled.columns["age"]), np.sort(table.columns["age"]))
-    assert not np.array_equal(scrambled.columns["age"], table.columns["age"])
+    scrambled = scrambled_table(make_plan(), table, "arm", seed=1)
+    assert sorted(scrambled.columns["arm"]) == sorted(table.columns["arm"])
+    assert list(scrambled.columns["arm"]) != list(table.columns["arm"])
+
+
+def test_only_the_exposure_may_be_scrambled():
+    # any other column scrambled leaves the real exposure effect in the rehearsal's report
+    with pytest.raises(Stop) as caught:
+        scrambled_table(make_plan(), real_table(), "age", seed=1)
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    problem = caught.value.problems[0]
+    assert problem.code == "scramble-not-exposure" and "not the exposure" in problem.message
+    assert problem.hint == "scramble the exposure (arm)"
+
+
+def test_a_plan_with_two_exposures_cannot_be_blinded_by_scrambling_one():
+    from dataclasses import replace
+
+    other = replace(analysis("binomial", "cured"), exposure="smoker")
+    plan = make_plan(analyses=[analysis("gaussian", "score"), other])
+    with pytest.raises(Stop) as caught:
+        scrambled_table(plan, real_table(), "arm", seed=1)
+    assert "the exposure smoker of other analyses would stay unscrambled" in \
+        caught.value.problems[0].message
+    assert "rehearse on synthetic data" in caught.value.problems[0].hint
 
 
 @pytest.mark.parametrize("name, said", [("dose", "not in the data dictionary"),
