@@ -13,6 +13,7 @@ that differs is named by its path in the results (a bounded list).
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 from .canonical import canonical_bytes, differences, sha256_hex
@@ -58,11 +59,16 @@ def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
     try:
         raw = (folder / MANIFEST).read_bytes()
         manifest = json.loads(raw.decode("utf-8"))
-        listed = {entry["path"]: entry for entry in manifest["files"]}
-    except (OSError, UnicodeDecodeError, ValueError, KeyError, TypeError) as exc:
+    except (OSError, UnicodeDecodeError, ValueError) as exc:
         return [_fail(f"{MANIFEST}: unreadable ({type(exc).__name__}: {exc})",
                       file=MANIFEST)], []
+    malformed = _malformed(manifest)
+    if malformed:
+        return [_fail(f"{MANIFEST}: not a bundle manifest: {malformed}", file=MANIFEST)], []
+    listed = {entry["path"]: entry for entry in manifest["files"]}
     problems, notes = [], []
+    problems += [_fail(f"{name}: a symbolic link", file=name) for name in (MANIFEST, SIGNATURE)
+                 if (folder / name).is_symlink()]
     if raw != canonical_bytes(manifest):
         problems.append(_fail(f"{MANIFEST}: its bytes are not the canonical form of its content "
                               "(it was edited)", file=MANIFEST))
@@ -71,8 +77,9 @@ def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
                               "manifest_sha256 (it was edited)", file=MANIFEST))
     for name, entry in sorted(listed.items()):
         path = folder / name
-        if not path.is_file():
-            problems.append(_fail(f"{name}: missing from the bundle", file=name))
+        if path.is_symlink() or not path.is_file():
+            said = "a symbolic link" if path.is_symlink() else "missing from the bundle"
+            problems.append(_fail(f"{name}: {said}", file=name))
             continue
         data = path.read_bytes()
         if len(data) != entry.get("size") or sha256_hex(data) != entry.get("sha256"):
@@ -82,11 +89,13 @@ def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
                                   file=name))
     signature = manifest.get("signature")
     expected = set(listed) | {MANIFEST} | ({SIGNATURE} if signature else set())
-    present = {p.relative_to(folder).as_posix() for p in folder.rglob("*") if not p.is_dir()}
-    problems += [_fail(f"{name}: not listed in the manifest (an added file)", file=name)
-                 for name in sorted(present - expected)]
+    problems += [_fail(f"{name}: not listed in the manifest ({what})", file=name)
+                 for name, what in _entries(folder) if name not in expected]
     problems += _cross_check(manifest, listed)
-    if signature:
+    if signature and not (folder / SIGNATURE).is_file():
+        problems.append(_fail(f"{SIGNATURE}: missing, but the manifest says the bundle is "
+                              "signed", file=SIGNATURE))
+    elif signature:
         problems_, note = _check_signature(folder, raw, signature, key)
         problems += problems_
         notes += note
@@ -94,6 +103,44 @@ def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
         problems.append(_fail(f"{MANIFEST}: the bundle is not signed, but --key was given",
                               file=MANIFEST))
     return problems, notes
+
+
+def _malformed(manifest) -> str | None:
+    """What makes a parsed manifest unusable as one, or None: the checks below read these
+    fields by these types (its digest and canonical bytes are checked after)."""
+    if not isinstance(manifest, dict):
+        return "it is not a JSON object"
+    files = manifest.get("files")
+    if not isinstance(files, list) or not all(
+            isinstance(e, dict) and isinstance(e.get("path"), str) and e["path"]
+            and isinstance(e.get("size"), int) and isinstance(e.get("sha256"), str)
+            for e in files):
+        return "`files` is not a list of {path, size, sha256} entries"
+    for part in ("signature", "results", "plan", "data"):
+        if manifest.get(part) is not None and not isinstance(manifest[part], dict):
+            return f"`{part}` is not an object"
+    if not isinstance(manifest.get("stamp", ""), str):
+        return "`stamp` is not text"
+    return None
+
+
+def _entries(folder: Path):
+    """(relative path, what it is) of everything in the folder but sub-folders that hold
+    something: a sealed bundle holds regular files only, so a link, an empty folder or any
+    other kind of entry is named. Links are not followed."""
+    for root, folders, files in os.walk(folder):
+        here = Path(root)
+        for name in folders:
+            path = here / name
+            if path.is_symlink():
+                yield path.relative_to(folder).as_posix(), "a symbolic link to a folder"
+            elif not any(path.iterdir()):
+                yield path.relative_to(folder).as_posix(), "an added, empty folder"
+        for name in files:
+            path = here / name
+            what = ("a symbolic link" if path.is_symlink() else
+                    "an added file" if path.is_file() else "not a regular file")
+            yield path.relative_to(folder).as_posix(), what
 
 
 def _cross_check(manifest: dict, listed: dict) -> list[Problem]:
@@ -127,9 +174,6 @@ def _check_signature(folder: Path, raw: bytes, signature: dict, key) -> tuple[li
     if not isinstance(public, Ed25519PublicKey):
         return [_fail(f"{key}: not an Ed25519 public key", code="bad-key")], []
     path = folder / SIGNATURE
-    if not path.is_file():
-        return [_fail(f"{SIGNATURE}: missing, but the manifest says the bundle is signed",
-                      file=SIGNATURE)], []
     try:
         public.verify(path.read_bytes(), raw)
     except InvalidSignature:

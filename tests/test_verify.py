@@ -86,12 +86,44 @@ def test_a_signature_from_another_key_is_caught(tmp_path):
     assert "signed with another key" in failures(report)[0]
 
 
-def test_a_removed_signature_is_caught(tmp_path):
+@pytest.mark.parametrize("with_key", [True, False])
+def test_a_removed_signature_is_caught_with_or_without_the_key(tmp_path, with_key):
     key, public = _keys(tmp_path)
     seal.seal(tmp_path / "signed", FILES, ABOUT, run_at=RUN_AT, key=key)
     (tmp_path / "signed" / "manifest.sig").unlink()
-    assert failures(verify(tmp_path / "signed", key=public)) == [
+    assert failures(verify(tmp_path / "signed", key=public if with_key else None)) == [
         "manifest.sig: missing, but the manifest says the bundle is signed"]
+
+
+def test_links_and_empty_folders_in_a_bundle_are_named(tmp_path, bundle):
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (outside / "x.txt").write_text("x")
+    (bundle / "linked").symlink_to(outside, target_is_directory=True)
+    (bundle / "empty").mkdir()
+    copy = tmp_path / "results-copy.json"
+    copy.write_bytes((bundle / "results.json").read_bytes())
+    (bundle / "results.json").unlink()
+    (bundle / "results.json").symlink_to(copy)  # the same bytes, but not sealed here
+    assert sorted(failures(verify(bundle))) == [
+        "empty: not listed in the manifest (an added, empty folder)",
+        "linked: not listed in the manifest (a symbolic link to a folder)",
+        "results.json: a symbolic link"]
+
+
+@pytest.mark.parametrize("content, said", [
+    ('{"files":[{"path":5}]}', "`files` is not a list"),
+    ("[1, 2]", "not a JSON object"),
+    ('{"files":[], "signature":"yes"}', "`signature` is not an object"),
+    ('{"files":[], "plan":"text"}', "`plan` is not an object"),
+])
+def test_a_manifest_of_the_wrong_shape_is_not_intact(bundle, content, said):
+    os.chmod(bundle / "manifest.json", 0o644)
+    (bundle / "manifest.json").write_text(content)
+    report = verify(bundle)
+    assert report.exit_code == Exit.NOT_INTACT
+    [message] = failures(report)
+    assert message.startswith("manifest.json: not a bundle manifest: ") and said in message
 
 
 def test_a_key_given_for_an_unsigned_bundle_is_not_intact(tmp_path, bundle):
