@@ -169,17 +169,27 @@ def require_match(plan, plan_path: str | Path) -> LockState:
 def read_lock(target: str | Path) -> LockState:
     """Read a lock and check it hangs together: format, plan digest, the amendment chain."""
     target = Path(target)
-    data = target.read_bytes()
     try:
-        document = json.loads(data.decode("utf-8"))
-    except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+        data = target.read_bytes()
+    except OSError as exc:  # a folder where the lock should be, a lock not readable
+        raise _broken(target, f"it cannot be read ({exc.strerror or exc})") from None
+    try:
+        document = json.loads(data.decode("utf-8"), parse_constant=_no_constant)
+    except (UnicodeDecodeError, ValueError) as exc:  # JSONDecodeError is a ValueError
         raise _broken(target, f"it is not valid JSON ({exc})") from None
+    except RecursionError:
+        raise _broken(target, "it is not a prespec lock (nested too deeply)") from None
     problems = check_lock(document)
     if problems:
         raise Stop([Problem(f"{target}: {p}", code="lock-broken",
                             hint="a lock is changed only by `prespec freeze` and `prespec amend`; "
                                  "restore it from version control") for p in problems], Exit.LOCK)
     return LockState(target, sha256_hex(data), document, data)
+
+
+def _no_constant(name: str):
+    """json's NaN, Infinity and -Infinity, which no lock holds (canonical JSON refuses them)."""
+    raise ValueError(f"{name} is not a JSON number")
 
 
 def check_lock(document) -> list[str]:

@@ -189,3 +189,22 @@ def test_an_edited_freeze_time_is_caught_by_the_head_digest(plan_file):
     _rewrite(lock.lock_path(plan_file), lambda d: d["freeze"].update(time="2020-01-01T00:00:00Z"))
     stop = stop_of(lambda: lock.require_match(compile_plan(plan_file), plan_file))
     assert "broken at the freeze record" in stop.problems[0].message
+
+
+@pytest.mark.parametrize("spoil", ["folder", "nan", "deep"])
+def test_a_lock_that_cannot_be_read_as_one_exits_4_naming_it(plan_file, spoil):
+    target = lock.lock_path(plan_file)
+    if spoil == "folder":
+        target.mkdir()
+    else:
+        lock.freeze(plan_file)
+        text = target.read_text(encoding="utf-8")
+        spoilt = (text.replace('"amendments": []', '"amendments": [NaN]', 1) if spoil == "nan"
+                  else "[" * 100_000 + "]" * 100_000)
+        assert spoilt != text
+        target.write_text(spoilt, encoding="utf-8")
+    for call in (lambda: lock.freeze(plan_file),
+                 lambda: lock.require_match(compile_plan(plan_file), plan_file)):
+        stop = stop_of(call)
+        assert stop.exit_code == Exit.LOCK
+        assert stop.problems[0].message.startswith(f"{target}: ")
