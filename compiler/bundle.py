@@ -41,7 +41,7 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
         plan = compile_plan(plan_path, loaded=lambda tree: renderer.start_for(
             named_data_path(tree, data)))
         state = None if unlocked else lock.require_match(plan, plan_path)
-        target = Path(out) if out else Path("out") / plan.study.id
+        target = seal.target_folder(out, Path("out") / plan.study.id)
         seal.check_target(target)
         key = seal.load_signing_key(sign_key) if sign_key else None
         data_path = data_path_for(plan, data)
@@ -68,7 +68,7 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
         raise Stop([Problem("rehearse --data needs --scramble VAR: a rehearsal on real, "
                             "unscrambled data would unblind the study", code="no-scramble")],
                    Exit.PLAN_INVALID)
-    target = Path(out) if out else Path("out") / f"{plan.study.id}-rehearsal"
+    target = seal.target_folder(out, Path("out") / f"{plan.study.id}-rehearsal")
     seal.check_target(target)
     if scramble is not None:
         settings = {"source": "scrambled", "seed": seed, "rows": None, "effect": None,

@@ -46,22 +46,48 @@ def refuse_existing(target: Path) -> None:
                             "choose another --out", code="bundle-exists")], Exit.PLAN_INVALID)
 
 
+def target_folder(out: str | None, default: Path) -> Path:
+    """The bundle folder --out names, or ``default`` when it is not given; an empty --out is
+    refused rather than taken for the default."""
+    if out is None:
+        return default
+    if not str(out).strip():
+        raise Stop([Problem("--out is empty: name the bundle folder, or leave --out out for "
+                            f"the default {default}", code="bundle-unwritable")],
+                   Exit.PLAN_INVALID)
+    return Path(out)
+
+
 def check_target(target: Path) -> None:
     """Refuse, before any work, a bundle folder that exists or could not be made: the
-    nearest folder above it that exists must be a folder this process may write into."""
+    nearest folder above it that exists must be a folder this process may write into, and
+    the name of the temporary folder the bundle is written in must fit the file system."""
     target = Path(target)
-    refuse_existing(target)
-    above = target.parent  # ends at "." or the root, which exist
-    while not above.exists() and not above.is_symlink():
-        above = above.parent
+    try:
+        refuse_existing(target)
+        above = target.parent  # ends at "." or the root, which exist
+        while not above.exists() and not above.is_symlink():
+            above = above.parent
+        longest = os.pathconf(above, "PC_NAME_MAX") if above.is_dir() else 255
+    except OSError as exc:  # a name too long for the file system, say
+        _unwritable(target, exc.strerror or str(exc))
     if not above.is_dir():
-        why = f"{above} is not a folder"
-    elif not os.access(above, os.W_OK | os.X_OK):
-        why = f"the folder {above} is not writable"
-    else:
-        return
+        _unwritable(target, f"{above} is not a folder")
+    if not os.access(above, os.W_OK | os.X_OK):
+        _unwritable(target, f"the folder {above} is not writable")
+    if len(_temporary_name(target).encode()) > longest:
+        _unwritable(target, f"its name is longer than this file system allows "
+                            f"({longest} bytes, with the temporary folder's suffix)")
+
+
+def _unwritable(target: Path, why: str):
     raise Stop([Problem(f"bundle {target} cannot be written: {why}", hint="choose another --out",
                         code="bundle-unwritable")], Exit.PLAN_INVALID)
+
+
+def _temporary_name(target: Path) -> str:
+    """The folder the bundle is written in before its one rename: beside the target."""
+    return f".{target.name}.tmp-{os.getpid()}-{secrets.token_hex(4)}"
 
 
 def load_signing_key(path: str | Path):
@@ -102,10 +128,13 @@ def seal(target: Path, files: dict[str, bytes], about: dict, *, run_at: str,
     """
     target = Path(target)
     refuse_existing(target)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    _remove_stale(target)
-    temporary = target.parent / f".{target.name}.tmp-{os.getpid()}-{secrets.token_hex(4)}"
-    temporary.mkdir()
+    temporary = target.parent / _temporary_name(target)
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        _remove_stale(target)
+        temporary.mkdir()
+    except OSError as exc:  # what check_target could not foresee (/proc, a full disk)
+        _unwritable(target, exc.strerror or str(exc))
     try:
         for name, data in sorted(files.items()):
             _write(temporary / name, data)
@@ -126,6 +155,9 @@ def seal(target: Path, files: dict[str, bytes], about: dict, *, run_at: str,
             time.sleep(float(pause))
         refuse_existing(target)  # someone may have written it while we worked
         os.rename(temporary, target)
+    except OSError as exc:  # a full disk, say: nothing of the bundle is left behind
+        shutil.rmtree(temporary, ignore_errors=True)
+        _unwritable(target, exc.strerror or str(exc))
     except BaseException:
         shutil.rmtree(temporary, ignore_errors=True)
         raise

@@ -127,3 +127,32 @@ def test_a_target_under_a_file_or_a_folder_not_writable_is_refused(tmp_path, mon
 def test_a_target_whose_folders_are_yet_to_be_made_is_accepted(tmp_path):
     seal.check_target(tmp_path / "a" / "b" / "study")
     assert not (tmp_path / "a").exists()  # the check makes nothing
+
+
+def test_an_empty_out_is_refused_not_taken_for_the_default(tmp_path):
+    assert seal.target_folder(None, tmp_path / "default") == tmp_path / "default"
+    with pytest.raises(Stop) as caught:
+        seal.target_folder("  ", tmp_path / "default")
+    assert caught.value.exit_code == Exit.PLAN_INVALID and "--out is empty" in str(caught.value)
+
+
+@pytest.mark.parametrize("length", [240, 300])
+def test_a_name_too_long_for_the_bundle_or_its_temporary_folder_is_refused(tmp_path, length):
+    # 240 bytes fit a file name (255 on common file systems), not with ".tmp-PID-HEX" added
+    with pytest.raises(Stop) as caught:
+        seal.check_target(tmp_path / ("x" * length))
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    assert "cannot be written" in caught.value.problems[0].message
+
+
+def test_a_failed_write_is_a_clear_error_and_leaves_nothing(tmp_path, monkeypatch):
+    import errno
+
+    def full(path, data):
+        raise OSError(errno.ENOSPC, "No space left on device")
+
+    monkeypatch.setattr(seal, "_write", full)
+    with pytest.raises(Stop) as caught:
+        sealed(tmp_path)
+    assert "No space left on device" in caught.value.problems[0].message
+    assert list((tmp_path / "out").iterdir()) == []
