@@ -25,9 +25,10 @@ _NAMED = 4  # columns named in an aliasing message
 
 def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
     """Fit every tier of ``analysis`` on ``design``; raises Stop (exit 3) when a tier cannot
-    be estimated at all (too few rows, aliased columns)."""
+    be estimated at all (too few rows, a constant outcome, aliased columns)."""
     _check_sizes(analysis, design)
     r = augmented_r(design.x, design.y)  # for gaussian: the whole fit; for GLM: rank and VIF
+    _check_outcome(analysis, design, r)
     _check_rank(plan, analysis, design, r)
     covariances = distinct_covariances(plan, analysis)
     report = list(design.tier_names).index(analysis.report_tier)
@@ -101,6 +102,28 @@ def _check_sizes(analysis: Analysis, design: Design) -> None:
         for name, width in zip(design.tier_names, design.tier_width) if n <= width]
     if problems:
         raise Stop(problems, Exit.DATA_CONTRACT)
+
+
+def _check_outcome(analysis: Analysis, design: Design, r: np.ndarray) -> None:
+    """Stop (exit 3) when the outcome takes one value in every analysed row: no tier can be
+    estimated, and what a fit would print is rounding noise (a gaussian "change in
+    estimate" of 1e14 %, a GLM at the boundary of its parameter space). Read from R of
+    [X | y]: with the intercept as X's first column, the squares in y's column of R below
+    the first row add up to ‖y − ȳ‖², judged against ‖y‖ with the rank test's tolerance."""
+    n, p = design.x.shape
+    if not design.labels or design.labels[0] != "(intercept)":
+        return
+    y_column = r[: p + 1, p]
+    spread = float(np.sqrt(np.sum(y_column[1:] ** 2)))
+    if spread > rank_tolerance(n, p) * float(np.sqrt(np.sum(y_column ** 2))):
+        return
+    value = float(r[0, p] / r[0, 0]) + 0.0  # + 0.0: no "-0"
+    raise Stop([Problem(
+        f"analysis {analysis.id}: the outcome takes the one value {value:.6g} in all {n} "
+        "analysed rows, so there is nothing to model in any tier", column=analysis.outcome,
+        code="constant-outcome", details={"value": value, "n": n},
+        hint="check the outcome's coding, the missing-value markers and the population")],
+        Exit.DATA_CONTRACT)
 
 
 def _check_rank(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -> None:

@@ -56,6 +56,7 @@ def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
         first = decomposition.result()
     header = first.header
     memory_fit._check_sizes(analysis, header)
+    memory_fit._check_outcome(analysis, header, first.r)
     memory_fit._check_rank(plan, analysis, header, first.r)
     covariances = distinct_covariances(plan, analysis)
     report = list(header.tier_names).index(analysis.report_tier)

@@ -344,3 +344,24 @@ def test_streamed_characteristics_equal_in_memory_but_for_the_quartiles(tmp_path
                     assert cell["median"] is None and "streamed run" in cell["reason"]
                     cell["reason"] = None
         numbers_agree(without_quartiles(in_memory[name]), streamed[name], name)
+
+
+@pytest.mark.parametrize("column, value", [("score", "12.5"), ("improved", "1"),
+                                           ("events", "0")])
+@pytest.mark.parametrize("streamed", [False, True])
+def test_an_outcome_with_one_value_stops_with_exit_3_in_memory_and_streamed(
+        tmp_path, small_batches, column, value, streamed):
+    # gaussian: the fit's numbers would be rounding noise; binomial and Poisson: the MLE is
+    # at the boundary (statsmodels' IRLS gives NaN). Every family's outcome is checked.
+    csv = simulated_csv(tmp_path / "d.csv", n=600)
+    lines = csv.read_text().splitlines()
+    at = lines[0].split(",").index(column)
+    rows = [line.split(",") for line in lines[1:]]
+    for row in rows:
+        row[at] = value
+    csv.write_text("\n".join([lines[0], *(",".join(r) for r in rows)]) + "\n")
+    with pytest.raises(Stop) as caught:
+        analyse(bench_plan(csv), csv, stream=streamed)
+    [problem] = caught.value.problems
+    assert problem.code == "constant-outcome" and problem.column == column
+    assert f"takes the one value {float(value):g} in all" in problem.message
