@@ -198,9 +198,15 @@ def _hashes(text) -> np.ndarray:
 
 
 def _plain(value):
+    """A value as shown: whole numbers without ".0", but only while they have few digits
+    (2.44e+200 stays a float rather than printing 201 digits)."""
     if isinstance(value, (np.floating, float)):
-        return float(value) if not float(value).is_integer() else int(value)
+        return int(value) if _short_whole(value) else float(value)
     return value
+
+
+def _short_whole(value) -> bool:
+    return float(value).is_integer() and abs(float(value)) < 1e15
 
 
 # --- findings -----------------------------------------------------------------------------
@@ -382,7 +388,7 @@ def _markers(plan: Plan) -> str:
 def _num(value: float | None, default: str) -> str:
     if value is None:
         return default
-    return str(int(value)) if float(value).is_integer() else str(value)
+    return str(int(value)) if _short_whole(value) else str(value)
 
 
 def _show(value) -> str:

@@ -86,6 +86,11 @@ def test_values_outside_the_declared_range(tmp_path):
     assert "values outside [18, 100]" in problem.message
 
 
+def test_a_huge_value_is_shown_in_exponent_form_not_as_its_digits(tmp_path):
+    problem = _only(_findings(tmp_path, _edit(1, "age", "2.44e200")), "out-of-range")
+    assert problem.details["values"] == ["2.44e+200"]
+
+
 def test_a_level_outside_the_declared_levels_hints_at_letter_case(tmp_path):
     problem = _only(_findings(tmp_path, _edit(1, "arm", "Walking")), "unknown-level")
     assert problem.column == "arm" and problem.details["rows"] == 1
