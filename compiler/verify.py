@@ -17,7 +17,7 @@ import os
 from pathlib import Path
 
 from .canonical import canonical_bytes, differences, sha256_hex
-from .problems import Exit, Problem
+from .problems import Exit, Problem, Stop
 
 MAX_DIFFERENCES = 25  # printed
 MAX_DIFFERENCES_JSON = 500  # in --json details
@@ -31,6 +31,8 @@ def verify(folder, *, data=None, key=None):
     from .cli import Report
 
     folder = Path(folder)
+    if key is not None:
+        load_public_key(key)  # a key file that is not one is the command line's fault
     problems, lines = check_bundle(folder, key)
     payload = {"bundle": str(folder), "intact": not problems, "rerun": None}
     if not problems:
@@ -156,6 +158,23 @@ def _cross_check(manifest: dict, listed: dict) -> list[Problem]:
     return problems
 
 
+def load_public_key(key):
+    """The Ed25519 public key in the PEM file ``key``; exit 2 (the command line names a file
+    that is not one) otherwise, whatever the bundle."""
+    from cryptography.hazmat.primitives import serialization
+    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
+
+    try:
+        public = serialization.load_pem_public_key(Path(key).read_bytes())
+    except (OSError, ValueError, TypeError) as exc:
+        raise Stop([Problem(f"{key}: cannot read the public key: {exc}", code="bad-key")],
+                   Exit.PLAN_INVALID) from None
+    if not isinstance(public, Ed25519PublicKey):
+        raise Stop([Problem(f"{key}: not an Ed25519 public key", code="bad-key")],
+                   Exit.PLAN_INVALID)
+    return public
+
+
 def _check_signature(folder: Path, raw: bytes, signature: dict, key) -> tuple[list, list]:
     from .seal import SIGNATURE, public_key_sha256
 
@@ -164,15 +183,8 @@ def _check_signature(folder: Path, raw: bytes, signature: dict, key) -> tuple[li
                     f"{str(signature.get('public_key_sha256'))[:12]}); "
                     "give --key PUB to check the signature"]
     from cryptography.exceptions import InvalidSignature
-    from cryptography.hazmat.primitives import serialization
-    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
 
-    try:
-        public = serialization.load_pem_public_key(Path(key).read_bytes())
-    except (OSError, ValueError, TypeError) as exc:
-        return [_fail(f"{key}: cannot read the public key: {exc}", code="bad-key")], []
-    if not isinstance(public, Ed25519PublicKey):
-        return [_fail(f"{key}: not an Ed25519 public key", code="bad-key")], []
+    public = load_public_key(key)
     path = folder / SIGNATURE
     try:
         public.verify(path.read_bytes(), raw)

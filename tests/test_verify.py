@@ -129,3 +129,16 @@ def test_a_manifest_of_the_wrong_shape_is_not_intact(bundle, content, said):
 def test_a_key_given_for_an_unsigned_bundle_is_not_intact(tmp_path, bundle):
     _, public = _keys(tmp_path)
     assert verify(bundle, key=public).exit_code == Exit.NOT_INTACT
+
+
+@pytest.mark.parametrize("content", [None, b"not a key\n"])
+def test_a_key_file_that_is_not_a_public_key_is_a_command_line_error(tmp_path, bundle, content):
+    from compiler.problems import Stop
+
+    key = tmp_path / "key.pem"
+    if content is not None:
+        key.write_bytes(content)
+    with pytest.raises(Stop) as caught:
+        verify(bundle, key=key)
+    assert caught.value.exit_code == Exit.PLAN_INVALID
+    assert caught.value.problems[0].message.startswith(f"{key}: cannot read the public key")
