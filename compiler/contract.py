@@ -16,6 +16,7 @@ does not change with the population.
 from __future__ import annotations
 
 import difflib
+import re
 
 import numpy as np
 
@@ -243,13 +244,26 @@ def logged_variables(plan: Plan) -> set[str]:
     return logged
 
 
+_NON_FINITE = re.compile(r"[+-]?(nan|inf|infinity)\Z", re.IGNORECASE)
+
+
+def unparsed_wording(plan: Plan, tally: Tally) -> tuple[str, str, str]:
+    """(message, code, hint) for the values of a numeric column that are not numbers: NaN
+    and infinity (a Parquet float, or the words in a CSV) when the examples are all such,
+    else text."""
+    if tally.values and all(_NON_FINITE.match(str(v)) for v in tally.values):
+        return ("values that are not finite numbers (NaN or infinity)", "non-finite",
+                f"write a missing value as a declared marker ({_markers(plan)}); NaN is not one")
+    return ("text in a numeric column", "text-in-numeric",
+            f"only numbers, or a missing-value marker ({_markers(plan)}), may appear")
+
+
 def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool) -> list[Problem]:
     name, values = variable.name, table.columns[variable.name]
     problems: list[Problem] = []
     found: list[tuple[Tally, str, str, str | None]] = []  # tally, message, code, hint
     if name in table.unparsed:
-        found.append((table.unparsed[name], "text in a numeric column", "text-in-numeric",
-                      f"only numbers, or a missing-value marker ({_markers(plan)}), may appear"))
+        found.append((table.unparsed[name], *unparsed_wording(plan, table.unparsed[name])))
     if variable.is_numeric:
         if variable.min is not None or variable.max is not None:
             span = f"[{_num(variable.min, '-∞')}, {_num(variable.max, '∞')}]"

@@ -275,11 +275,9 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
         "not-positive": "values ≤ 0 in a variable that enters as a log",
         "duplicate-id": "identifier values repeated (row_id must be unique)",
         "missing-id": "identifier missing (row_id must be complete)",
-        "text-in-numeric": "text in a numeric column",
+        "text-in-numeric": None,  # contract.unparsed_wording
     }
-    hints = {"not-positive": "a log is defined only for positive values",
-             "text-in-numeric": "only numbers, or a missing-value marker "
-                                f"({contract._markers(plan)}), may appear"}
+    hints = {"not-positive": "a log is defined only for positive values"}
     for name, column in columns.items():
         variable = plan.variable(name)
         for code, found in column.tallies.items():
@@ -287,8 +285,10 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
                 continue
             message = messages[code] or (f"values outside [{contract._num(variable.min, '-∞')}, "
                                          f"{contract._num(variable.max, '∞')}]")
-            problems.append(contract._problem(plan, wording, name, found, message, code,
-                                              hints.get(code)))
+            hint = hints.get(code)
+            if code == "text-in-numeric":
+                message, code, hint = contract.unparsed_wording(plan, found)
+            problems.append(contract._problem(plan, wording, name, found, message, code, hint))
         if variable.kind == "categorical":
             problems += _level_findings(plan, wording, variable, column)
         if variable.max_missing is not None:

@@ -86,6 +86,12 @@ def test_values_outside_the_declared_range(tmp_path):
     assert "values outside [18, 100]" in problem.message
 
 
+@pytest.mark.parametrize("value", ["nan", "-inf", "Infinity"])
+def test_nan_or_infinity_is_named_as_such_not_as_text(tmp_path, value):
+    problem = _only(_findings(tmp_path, _edit(2, "age", value)), "non-finite")
+    assert problem.message.startswith("values that are not finite numbers (NaN or infinity)")
+
+
 def test_a_huge_value_is_shown_in_exponent_form_not_as_its_digits(tmp_path):
     problem = _only(_findings(tmp_path, _edit(1, "age", "2.44e200")), "out-of-range")
     assert problem.details["values"] == ["2.44e+200"]
