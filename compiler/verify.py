@@ -118,11 +118,15 @@ def _malformed(manifest) -> str | None:
             and isinstance(e.get("size"), int) and isinstance(e.get("sha256"), str)
             for e in files):
         return "`files` is not a list of {path, size, sha256} entries"
+    outside = [e["path"] for e in files if Path(e["path"]).is_absolute()
+               or ".." in Path(e["path"]).parts]
+    if outside:
+        return f"`files` names {outside[0]!r}, outside the bundle folder"
     for part in ("signature", "results", "plan", "data"):
         if manifest.get(part) is not None and not isinstance(manifest[part], dict):
             return f"`{part}` is not an object"
-    if not isinstance(manifest.get("stamp", ""), str):
-        return "`stamp` is not text"
+    if not isinstance(manifest.get("stamp"), str):
+        return "`stamp` is missing or not text"
     return None
 
 

@@ -116,6 +116,8 @@ def test_links_and_empty_folders_in_a_bundle_are_named(tmp_path, bundle):
     ("[1, 2]", "not a JSON object"),
     ('{"files":[], "signature":"yes"}', "`signature` is not an object"),
     ('{"files":[], "plan":"text"}', "`plan` is not an object"),
+    ('{"files":[], "stamp":null}', "`stamp` is missing"),
+    ('{"files":[{"path":"../x","size":1,"sha256":"0"}]}', "outside the bundle folder"),
 ])
 def test_a_manifest_of_the_wrong_shape_is_not_intact(bundle, content, said):
     os.chmod(bundle / "manifest.json", 0o644)
