@@ -169,11 +169,7 @@ def _empty_reason(variable: Variable, allowed: Allowed, condition: Condition) ->
 
 
 def declared_range(variable: Variable) -> str:
-    if variable.min is None and variable.max is None:
-        return ""
-    low = "−∞" if variable.min is None else f"{variable.min:g}"
-    high = "∞" if variable.max is None else f"{variable.max:g}"
-    return f" (declared range [{low}, {high}])"
+    return variable.declared_range()
 
 
 def population_allowed(plan: Plan, population: Population, base: dict[str, Allowed],

@@ -54,6 +54,14 @@ class Variable:
     def is_numeric(self) -> bool:
         return self.kind in ("continuous", "count", "binary")
 
+    def declared_range(self) -> str:
+        """The text ' (declared range [LOW, HIGH])' for a message, or '' when none is declared."""
+        if self.min is None and self.max is None:
+            return ""
+        low = "−∞" if self.min is None else f"{self.min:g}"
+        high = "∞" if self.max is None else f"{self.max:g}"
+        return f" (declared range [{low}, {high}])"
+
 
 @dataclass(frozen=True)
 class Condition:

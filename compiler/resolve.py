@@ -10,6 +10,8 @@ plan is evaluated: a term is a declared variable name or a structured mapping, n
 
 from __future__ import annotations
 
+import math
+
 from .columns import INTERCEPT
 from .load import Mapping, Node, Scalar, Sequence, Tree
 from .plan import (
@@ -181,7 +183,41 @@ def _population(ctx: Context, name: str, node: Mapping) -> Population:
         condition = _condition(ctx, name, item)
         if condition is not None:
             conditions.append(condition)
+    _check_bounds(ctx, name, conditions)
     return Population(name, tuple(conditions), node.place)
+
+
+def _check_bounds(ctx: Context, population: str, conditions: list[Condition]) -> None:
+    """Report the first ordered condition that leaves a variable no value, given the ones
+    before it and the declared range (age ≥ 18 and then age ≤ 10): such a population holds
+    no row, which the run would only find out after unblinding."""
+    bounds: dict[str, tuple] = {}  # variable -> (low, low included, high, high included)
+    for condition in conditions:
+        if condition.op not in _ORDERED:
+            continue
+        variable = ctx.variables[condition.variable]
+        if variable.min is not None and variable.max is not None and variable.min > variable.max:
+            continue  # reported already, as the dictionary's fault
+        low, low_in, high, high_in = bounds.get(condition.variable, (
+            -math.inf if variable.min is None else variable.min, True,
+            math.inf if variable.max is None else variable.max, True))
+        value, strict = float(condition.value), condition.op in ("above", "below")
+        if condition.op in ("at_least", "above") and (value > low or value == low and strict):
+            low, low_in = value, not strict
+        elif condition.op in ("at_most", "below") and (value < high or value == high and strict):
+            high, high_in = value, not strict
+        bounds[condition.variable] = (low, low_in, high, high_in)
+        if low > high or (low == high and not (low_in and high_in)):
+            earlier = [c.describe() for c in conditions[:conditions.index(condition)]
+                       if c.variable == condition.variable and c.op in _ORDERED]
+            together = f" together with {', '.join(earlier)}" if earlier else ""
+            ctx.error(f"population `{population}`: no value of `{variable.name}` can meet "
+                      f"{condition.describe()}{together}{variable.declared_range()}",
+                      condition.place,
+                      hint="a population that holds no row leaves its analyses nothing to fit",
+                      code="population-empty")
+            return
+
 
 
 def _condition(ctx: Context, population: str, node: Mapping) -> Condition | None:

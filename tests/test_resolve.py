@@ -361,3 +361,23 @@ def test_every_problem_is_reported_at_once_in_file_order(tmp_path):
     text = variant("{variable: age, at_least: 18}", "{variable: sex, at_least: 1}", text)
     assert [(line, col) for _, line, col in problems(tmp_path, text)] == [
         at(text, 18, "1}"), at(text, 21, "yy"), at(text, 27, "pid")]
+
+
+@pytest.mark.parametrize("extra, said", [
+    ("{variable: age, below: 18}",
+     "no value of `age` can meet age < 18 together with age ≥ 18 (declared range [18, 90])"),
+    ("{variable: age, above: 90}",
+     "no value of `age` can meet age > 90 together with age ≥ 18 (declared range [18, 90])"),
+])
+def test_a_population_whose_bounds_leave_no_value_is_refused_at_its_condition(tmp_path, extra, said):
+    text = variant("      - {variable: age, at_least: 18}\n",
+                   f"      - {{variable: age, at_least: 18}}\n      - {extra}\n")
+    [(message, line, col)] = problems(tmp_path, text)
+    assert message == f"population `adults`: {said}" and (line, col) == (19, 9)
+
+
+@pytest.mark.parametrize("extra", ["{variable: age, at_most: 18}", "{variable: age, below: 18.5}"])
+def test_bounds_that_leave_one_value_or_a_sliver_are_accepted(tmp_path, extra):
+    text = variant("      - {variable: age, at_least: 18}\n",
+                   f"      - {{variable: age, at_least: 18}}\n      - {extra}\n")
+    assert compile_plan(write(tmp_path, text)).populations[0].name == "adults"
