@@ -31,9 +31,9 @@ def verify(folder, *, data=None, key=None):
     from .cli import Report
 
     folder = Path(folder)
-    if key is not None:
-        load_public_key(key)  # a key file that is not one is the command line's fault
-    problems, lines = check_bundle(folder, key)
+    # a key file that is not one is the command line's fault, whatever the bundle
+    public = load_public_key(key) if key is not None else None
+    problems, lines = check_bundle(folder, key, public)
     payload = {"bundle": str(folder), "intact": not problems, "rerun": None}
     if not problems:
         manifest = json.loads((folder / "manifest.json").read_bytes())
@@ -52,8 +52,9 @@ def _fail(message: str, code: str = "not-intact", **details) -> Problem:
     return Problem(message, code=code, details=details)
 
 
-def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
-    """Every way the bundle differs from its manifest (empty when intact), and notes."""
+def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], list[str]]:
+    """Every way the bundle differs from its manifest (empty when intact), and notes.
+    ``public``: the Ed25519 public key loaded from the file ``key`` (load_public_key)."""
     from .seal import MANIFEST, SIGNATURE, manifest_digest
 
     if not folder.is_dir():
@@ -98,7 +99,7 @@ def check_bundle(folder: Path, key=None) -> tuple[list[Problem], list[str]]:
         problems.append(_fail(f"{SIGNATURE}: missing, but the manifest says the bundle is "
                               "signed", file=SIGNATURE))
     elif signature:
-        problems_, note = _check_signature(folder, raw, signature, key)
+        problems_, note = _check_signature(folder, raw, signature, key, public)
         problems += problems_
         notes += note
     elif key is not None:
@@ -164,7 +165,7 @@ def _cross_check(manifest: dict, listed: dict) -> list[Problem]:
 
 def load_public_key(key):
     """The Ed25519 public key in the PEM file ``key``; exit 2 (the command line names a file
-    that is not one) otherwise, whatever the bundle."""
+    that is not one) otherwise."""
     from cryptography.hazmat.primitives import serialization
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
 
@@ -179,16 +180,16 @@ def load_public_key(key):
     return public
 
 
-def _check_signature(folder: Path, raw: bytes, signature: dict, key) -> tuple[list, list]:
+def _check_signature(folder: Path, raw: bytes, signature: dict, key,
+                     public) -> tuple[list, list]:
     from .seal import SIGNATURE, public_key_sha256
 
-    if key is None:
+    if public is None:
         return [], [f"signed ({signature.get('algorithm')}, public key sha256 "
                     f"{str(signature.get('public_key_sha256'))[:12]}); "
                     "give --key PUB to check the signature"]
     from cryptography.exceptions import InvalidSignature
 
-    public = load_public_key(key)
     path = folder / SIGNATURE
     try:
         public.verify(path.read_bytes(), raw)
