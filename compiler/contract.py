@@ -266,9 +266,8 @@ def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool)
         found.append((table.unparsed[name], *unparsed_wording(plan, table.unparsed[name])))
     if variable.is_numeric:
         if variable.min is not None or variable.max is not None:
-            span = f"[{_num(variable.min, '-∞')}, {_num(variable.max, '∞')}]"
             found.append((outside_range(values, variable.min, variable.max),
-                          f"values outside {span}", "out-of-range", None))
+                          f"values outside {span(variable)}", "out-of-range", None))
         if variable.kind == "binary":
             found.append((not_binary(values), "values other than 0 and 1 in a binary column",
                           "not-binary", None))
@@ -397,6 +396,11 @@ def _absent(variable: Variable, table: Table) -> Problem:
 
 def _markers(plan: Plan) -> str:
     return ", ".join(f'"{m}"' for m in plan.data.missing) or "none declared"
+
+
+def span(variable: Variable) -> str:
+    """The declared range as the findings print it, e.g. "[16, 95]" or "[0, ∞]"."""
+    return f"[{_num(variable.min, '-∞')}, {_num(variable.max, '∞')}]"
 
 
 def _num(value: float | None, default: str) -> str:

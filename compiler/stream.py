@@ -275,7 +275,6 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
         "not-positive": "values ≤ 0 in a variable that enters as a log",
         "duplicate-id": "identifier values repeated (row_id must be unique)",
         "missing-id": "identifier missing (row_id must be complete)",
-        "text-in-numeric": None,  # contract.unparsed_wording
     }
     hints = {"not-positive": "a log is defined only for positive values"}
     for name, column in columns.items():
@@ -283,11 +282,11 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
         for code, found in column.tallies.items():
             if not found.count or code == "unknown-level":
                 continue
-            message = messages[code] or (f"values outside [{contract._num(variable.min, '-∞')}, "
-                                         f"{contract._num(variable.max, '∞')}]")
-            hint = hints.get(code)
             if code == "text-in-numeric":
                 message, code, hint = contract.unparsed_wording(plan, found)
+            else:
+                message = messages[code] or f"values outside {contract.span(variable)}"
+                hint = hints.get(code)
             problems.append(contract._problem(plan, wording, name, found, message, code, hint))
         if variable.kind == "categorical":
             problems += _level_findings(plan, wording, variable, column)
