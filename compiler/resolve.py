@@ -192,7 +192,7 @@ def _check_bounds(ctx: Context, population: str, conditions: list[Condition]) ->
     before it and the declared range (age ≥ 18 and then age ≤ 10): such a population holds
     no row, which the run would only find out after unblinding."""
     bounds: dict[str, tuple] = {}  # variable -> (low, low included, high, high included)
-    for condition in conditions:
+    for at, condition in enumerate(conditions):
         if condition.op not in _ORDERED:
             continue
         variable = ctx.variables[condition.variable]
@@ -208,7 +208,7 @@ def _check_bounds(ctx: Context, population: str, conditions: list[Condition]) ->
             high, high_in = value, not strict
         bounds[condition.variable] = (low, low_in, high, high_in)
         if low > high or (low == high and not (low_in and high_in)):
-            earlier = [c.describe() for c in conditions[:conditions.index(condition)]
+            earlier = [c.describe() for c in conditions[:at]
                        if c.variable == condition.variable and c.op in _ORDERED]
             together = f" together with {', '.join(earlier)}" if earlier else ""
             ctx.error(f"population `{population}`: no value of `{variable.name}` can meet "
