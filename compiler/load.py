@@ -374,6 +374,12 @@ def _convert(node, source: str, problems: _Problems) -> Node:
     return Mapping(entries, key_places, place)
 
 
+def reads_as_text(text: str) -> bool:
+    """Whether ``text`` written without quotes would be a string (not null, a boolean or a
+    number): a quoted scalar for which this is false is shown with its quotes in messages."""
+    return text not in _NULL and text not in _BOOL and not _FLOAT.match(text)
+
+
 def _scalar(node: ScalarNode, place: Place, problems: _Problems) -> Scalar:
     text = node.value
     if node.style:  # quoted or block scalars are always strings

@@ -12,7 +12,7 @@ from __future__ import annotations
 import json
 from typing import Iterator
 
-from .load import Mapping, Scalar, Tree
+from .load import Mapping, Scalar, Tree, reads_as_text
 from .problems import Exit, Place, Problem, stop_if_errors
 from .resources import schema_path
 from .suggest import did_you_mean
@@ -67,6 +67,8 @@ def _problems(error, tree: Tree, root: dict) -> Iterator[Problem]:
     value = _show(error.instance)
     if isinstance(node, Scalar) and node.value == error.instance:
         value = _show(node.text)  # as written: `1.0`, not `1`
+        if node.quoted and not reads_as_text(node.text):
+            value = _show(f'"{node.text}"')  # text that looks like a number: `"1"`, not `1`
 
     if "propertyNames" in error.absolute_schema_path:
         key = error.instance

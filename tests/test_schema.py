@@ -150,6 +150,13 @@ def test_a_wrong_language_version_is_refused(tmp_path):
         ("`prespec` must be 1 (the plan-language version), not `2`", 1, 10, None)]
 
 
+def test_a_version_written_as_text_is_shown_with_its_quotes(tmp_path):
+    # `prespec: '1'` is the text "1": shown bare, the message read "must be 1, not `1`"
+    text = variant("prespec: 1\n", "prespec: '1'\n")
+    assert problems(tmp_path, text) == [
+        ('`prespec` must be 1 (the plan-language version), not `"1"`', 1, 10, None)]
+
+
 def test_a_bad_study_id_is_refused(tmp_path):
     text = variant("{id: trial,", "{id: My Trial,")
     assert problems(tmp_path, text) == [
