@@ -33,10 +33,9 @@ def verify(folder, *, data=None, key=None):
     folder = Path(folder)
     # a key file that is not one is the command line's fault, whatever the bundle
     public = load_public_key(key) if key is not None else None
-    problems, lines = check_bundle(folder, key, public)
+    problems, lines, manifest = check_bundle(folder, key, public)
     payload = {"bundle": str(folder), "intact": not problems, "rerun": None}
     if not problems:
-        manifest = json.loads((folder / "manifest.json").read_bytes())
         lines.insert(0, f"{folder}: intact: {len(manifest['files'])} files match the manifest "
                         f"(manifest sha256 {manifest['manifest_sha256'][:12]}), {manifest['stamp']}")
         payload.update(stamp=manifest["stamp"], manifest_sha256=manifest["manifest_sha256"])
@@ -52,22 +51,27 @@ def _fail(message: str, code: str = "not-intact", **details) -> Problem:
     return Problem(message, code=code, details=details)
 
 
-def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], list[str]]:
-    """Every way the bundle differs from its manifest (empty when intact), and notes.
-    ``public``: the Ed25519 public key loaded from the file ``key`` (load_public_key)."""
+def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], list[str],
+                                                                dict | None]:
+    """Every way the bundle differs from its manifest (empty when intact), notes, and the
+    manifest as checked (None when it is unreadable or not a manifest), so that what is
+    reported is what was checked. ``public``: the Ed25519 public key loaded from the file
+    ``key`` (load_public_key)."""
     from .seal import MANIFEST, SIGNATURE, manifest_digest
 
     if not folder.is_dir():
-        return [_fail(f"{folder}: not a bundle folder (it does not exist or is not a folder)")], []
+        return [_fail(f"{folder}: not a bundle folder (it does not exist or is not a "
+                      "folder)")], [], None
     try:
         raw = (folder / MANIFEST).read_bytes()
         manifest = json.loads(raw.decode("utf-8"))
     except (OSError, UnicodeDecodeError, ValueError) as exc:
         return [_fail(f"{MANIFEST}: unreadable ({type(exc).__name__}: {exc})",
-                      file=MANIFEST)], []
+                      file=MANIFEST)], [], None
     malformed = _malformed(manifest)
     if malformed:
-        return [_fail(f"{MANIFEST}: not a bundle manifest: {malformed}", file=MANIFEST)], []
+        return [_fail(f"{MANIFEST}: not a bundle manifest: {malformed}",
+                      file=MANIFEST)], [], None
     listed = {entry["path"]: entry for entry in manifest["files"]}
     problems, notes = [], []
     problems += [_fail(f"{name}: a symbolic link", file=name) for name in (MANIFEST, SIGNATURE)
@@ -105,7 +109,7 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
     elif key is not None:
         problems.append(_fail(f"{MANIFEST}: the bundle is not signed, but --key was given",
                               file=MANIFEST))
-    return problems, notes
+    return problems, notes, manifest
 
 
 def _malformed(manifest) -> str | None:
