@@ -7,6 +7,7 @@ as one :class:`Stop`, so the user sees every problem in one go.
 
 from __future__ import annotations
 
+import unicodedata
 from dataclasses import dataclass, field
 from enum import IntEnum
 from typing import Iterable, Literal
@@ -83,13 +84,23 @@ def _printable(text: str, lines: bool = True) -> str:
     """``text`` with its control characters escaped (``\\r``, ``\\x1b``, ``\\u2028``)
     but for the line breaks of a message that lists things: a message may quote a data
     file's bytes, and printed it must keep its lines and leave the terminal alone. JSON
-    output escapes them itself. A column name (``lines=False``) keeps no line break."""
+    output escapes them itself. A column name (``lines=False``) keeps no line break.
+    Characters that print as nothing or as a plain space are escaped too (a zero-width space
+    ``\\u200b``, a no-break space ``\\xa0``, a byte-order mark, the bidirectional
+    overrides that reorder what follows): in a name they are the difference the reader
+    must see."""
     return "".join(c.encode("unicode_escape").decode("ascii")
                    if _is_control(c) and not (lines and c == "\n") else c for c in text)
 
 
 def _is_control(c: str) -> bool:
-    return c < " " or "\x7f" <= c <= "\x9f" or c in "\u2028\u2029"
+    if c < " " or "\x7f" <= c <= "\x9f":
+        return True
+    return c > "\x9f" and (unicodedata.category(c) in _INVISIBLE)
+
+
+_INVISIBLE = {"Cf", "Zl", "Zp", "Zs"}  # format characters, line and paragraph separators,
+#                                        spaces other than U+0020
 
 
 class Stop(Exception):

@@ -16,3 +16,17 @@ def test_control_characters_from_a_file_are_escaped_not_sent_to_the_terminal():
     assert problem.format() == ("data: c\\nd: cannot read d.csv: field 'a\\x1b[31m\\rb\\x00'"
                                 "\\u2028\n  hint: h\\x07")
     assert problem.as_json()["message"] == problem.message  # JSON escapes them itself
+
+
+def test_characters_that_print_as_nothing_or_a_plain_space_are_escaped():
+    # a column name with a zero-width space, a no-break space or a byte-order mark looks like
+    # the declared one; a right-to-left override would reorder the rest of the line
+    problem = Problem("unknown column `age\u200b`; `dose\xa0mg`; `\ufeffid`; `x\u202ey`",
+                      column="a\u200bb")
+    assert problem.format() == ("data: a\\u200bb: unknown column `age\\u200b`; "
+                                "`dose\\xa0mg`; `\\ufeffid`; `x\\u202ey`")
+
+
+def test_letters_and_symbols_beyond_ascii_print_as_they_are():
+    problem = Problem("`durée` must be ≥ 0 — not −1.5 (µg)", place=Place("p.yaml", 1, 1))
+    assert problem.format() == "p.yaml:1:1: error: `durée` must be ≥ 0 — not −1.5 (µg)"
