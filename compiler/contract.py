@@ -15,7 +15,6 @@ does not change with the population.
 
 from __future__ import annotations
 
-import difflib
 import re
 
 import numpy as np
@@ -23,6 +22,7 @@ import numpy as np
 from .bound import EXAMPLES, CodedColumn, Sample, Table, Tally, TextColumn
 from .plan import Analysis, Plan, Variable
 from .problems import Problem
+from .suggest import nearest, shown
 
 # --- checks over arrays -------------------------------------------------------------------
 
@@ -386,11 +386,9 @@ def _problem(plan: Plan, table: Table, column: str, found: Tally, message: str, 
 
 
 def _absent(variable: Variable, table: Table) -> Problem:
-    close = difflib.get_close_matches(variable.name, table.unused_columns, n=1, cutoff=0.6)
-    folded = [c for c in table.unused_columns if c.casefold() == variable.name.casefold()]
-    near = folded or close
+    near = nearest(variable.name, table.unused_columns)
     return Problem("declared in the data dictionary but not in the file", column=variable.name,
-                   hint=f"the file has a column `{near[0]}`" if near else None,
+                   hint=f"the file has a column {shown(near, variable.name)}" if near else None,
                    code="column-missing")
 
 

@@ -3,22 +3,42 @@
 from __future__ import annotations
 
 import difflib
+import unicodedata
 from typing import Iterable
 
 
 def nearest(word: object, known: Iterable[str]) -> str | None:
-    """The known name closest to ``word``: same letters in another case first, then difflib."""
+    """The known name closest to ``word``: the same letters in other code points first
+    (``é`` as one character or as ``e`` and a combining accent), then in another case, then
+    difflib."""
     if not isinstance(word, str) or not word:
         return None
-    known = [k for k in known if isinstance(k, str)]
-    folded = [k for k in known if k.casefold() == word.casefold() and k != word]
-    if folded:
-        return folded[0]
+    known = [k for k in known if isinstance(k, str) and k != word]
+    composed = _nfc(word)
+    for same in (lambda k: _nfc(k) == composed,
+                 lambda k: _nfc(k).casefold() == composed.casefold()):
+        found = [k for k in known if same(k)]
+        if found:
+            return found[0]
     close = difflib.get_close_matches(word, known, n=1, cutoff=0.6)
     return close[0] if close else None
+
+
+def shown(match: str, word: str) -> str:
+    """``match`` in backticks, for a hint about ``word``; spelt out in code points when the
+    two look the same (they differ only in how their letters are encoded)."""
+    if _nfc(match) != _nfc(word):
+        return f"`{match}`"
+    escaped = match.encode("ascii", "backslashreplace").decode("ascii")
+    return (f"`{escaped}` (the same letters as `{word}`, in other Unicode code points: "
+            "names must match code point for code point)")
 
 
 def did_you_mean(word: object, known: Iterable[str]) -> str | None:
     """A hint such as "did you mean `population`?", or None when nothing is close."""
     match = nearest(word, known)
-    return f"did you mean `{match}`?" if match else None
+    return f"did you mean {shown(match, word)}?" if match else None
+
+
+def _nfc(text: str) -> str:
+    return unicodedata.normalize("NFC", text)

@@ -69,6 +69,20 @@ def test_a_declared_column_missing_from_the_file(tmp_path):
     assert problem.hint == "the file has a column `SBP`"
 
 
+def test_a_column_spelt_in_other_code_points_is_shown_as_such(tmp_path):
+    # the plan writes âge composed (U+00E2), the file decomposed (a + U+0302): the two look
+    # the same, so the hint spells the file's name out in code points
+    dictionary = {("âge" if name == "age" else name): spec for name, spec in DICTIONARY.items()}
+    plan = make_plan(dictionary, row_id="pid", analyses=[make_analysis(
+        "main", "sbp", "arm", add=["âge", "smoker", "visits", "site"])])
+    header = HEADER.replace("age", "a\u0302ge")
+    problem = _only(_findings(tmp_path, GOOD, plan=plan, header=header), "column-missing")
+    assert problem.column == "âge"
+    assert problem.hint == ("the file has a column `a\\u0302ge` (the same letters as `âge`, in "
+                            "other Unicode code points: names must match code point for code "
+                            "point)")
+
+
 def test_text_in_a_numeric_column(tmp_path):
     problem = _only(_findings(tmp_path, _edit(2, "age", "forty-five")), "text-in-numeric")
     assert problem.column == "age" and problem.details["rows"] == 1

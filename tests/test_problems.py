@@ -30,3 +30,14 @@ def test_characters_that_print_as_nothing_or_a_plain_space_are_escaped():
 def test_letters_and_symbols_beyond_ascii_print_as_they_are():
     problem = Problem("`durée` must be ≥ 0 — not −1.5 (µg)", place=Place("p.yaml", 1, 1))
     assert problem.format() == "p.yaml:1:1: error: `durée` must be ≥ 0 — not −1.5 (µg)"
+
+
+def test_did_you_mean_prefers_the_same_letters_in_other_code_points():
+    # composed é (U+00E9) against e + combining acute (U+0301), beside a near spelling
+    from compiler.suggest import did_you_mean
+
+    assert did_you_mean("dure\u0301e", ["durée", "durees"]) == (
+        "did you mean `dur\\xe9e` (the same letters as `dure\u0301e`, in other Unicode code "
+        "points: names must match code point for code point)?")
+    assert did_you_mean("durée", ["Durée", "duree"]) == "did you mean `Durée`?"
+    assert did_you_mean("durée", ["durée"]) is None  # the word itself is never suggested
