@@ -342,11 +342,18 @@ def sample_findings(plan: Plan, analysis: Analysis, table: Table, sample: Sample
     else:
         return []
     seen = level_counts(codes[sample.rows], distinct)
-    return [Problem(f"the declared level `{level}` of the exposure does not occur among the "
-                    f"{flow.n} analysed rows of analysis `{analysis.id}`, so its effect "
-                    "cannot be estimated", column=exposure.name, code="exposure-level-absent",
-                    details={"analysis": analysis.id, "level": level})
-            for level in levels if level not in seen]
+    reference = exposure.reference or levels[0]
+    among = f"does not occur among the {flow.n} analysed rows of analysis `{analysis.id}`"
+
+    def absent(level: str) -> Problem:
+        # the reference level has no effect of its own: without it no level has a contrast
+        said = (f", its reference level, {among}, so no other level can be compared with it"
+                if level == reference else f" {among}, so its effect cannot be estimated")
+        return Problem(f"the declared level `{level}` of the exposure{said}",
+                       column=exposure.name, code="exposure-level-absent",
+                       details={"analysis": analysis.id, "level": level})
+
+    return [absent(level) for level in levels if level not in seen]
 
 
 def describe_flow(flow) -> str:

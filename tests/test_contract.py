@@ -173,8 +173,22 @@ def test_an_exposure_level_absent_from_the_analysed_rows(tmp_path):
                  analyses=[make_analysis("main", "sbp", "arm", population="smokers")])
     rows = _edit(3, "arm", "walking")  # every smoker now walks
     problem = _only(_findings(tmp_path, rows, plan), "exposure-level-absent")
-    assert problem.column == "arm" and "`usual`" in problem.message
-    assert problem.details["analysis"] == "main"
+    assert problem.column == "arm" and problem.details["analysis"] == "main"
+    # usual is the first level, so the reference: it is the other levels that lose their effect
+    assert problem.message == ("the declared level `usual` of the exposure, its reference "
+                               "level, does not occur among the 3 analysed rows of analysis "
+                               "`main`, so no other level can be compared with it")
+
+
+def test_an_absent_level_that_is_not_the_reference_loses_its_own_effect(tmp_path):
+    plan = _plan(populations=[make_population("smokers", ("smoker", "equals", 1))],
+                 analyses=[make_analysis("main", "sbp", "arm", population="smokers")])
+    rows = _edit(5, "arm", "usual")  # P02 and P06, the smokers who walked, now usual care
+    rows[1] = rows[1].replace("walking", "usual")
+    problem = _only(_findings(tmp_path, rows, plan), "exposure-level-absent")
+    assert problem.message == ("the declared level `walking` of the exposure does not occur "
+                               "among the 3 analysed rows of analysis `main`, so its effect "
+                               "cannot be estimated")
 
 
 def test_unused_columns_are_a_warning_listing_them(tmp_path):
