@@ -22,7 +22,7 @@ import numpy as np
 from .bound import EXAMPLES, CodedColumn, Sample, Table, Tally, TextColumn
 from .plan import Analysis, Plan, Variable
 from .problems import Problem
-from .suggest import nearest, shown
+from .suggest import level_hints, nearest, shown
 
 # --- checks over arrays -------------------------------------------------------------------
 
@@ -307,13 +307,10 @@ def _level_findings(plan: Plan, table: Table, variable: Variable, codes: np.ndar
         counts = level_counts(codes, distinct)
         foreign = {v: n for v, n in counts.items() if v not in variable.levels}
         listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
-        folded = {level.casefold(): level for level in variable.levels}
-        hints = [f"`{v}` differs from the declared level `{folded[v.casefold()]}` only in case"
-                 for v in sorted(foreign) if v.casefold() in folded]
         problems.append(_problem(
             plan, table, variable.name, outside,
             f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
-            "unknown-level", "; ".join(hints) or None))
+            "unknown-level", level_hints(foreign, variable.levels)))
     exposures = {a.exposure for a in plan.analyses}
     if variable.name not in exposures:  # an exposure's levels are checked per analysis
         seen = level_counts(codes, distinct)

@@ -25,6 +25,7 @@ from .batches import FileFacts, NumbersAsText, batch_tables
 from .bound import BoundData, FlowStep, Sample, SampleFlow, Table, Tally
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop, stop_if_errors
+from .suggest import level_hints
 
 _NO_FLOW = SampleFlow(0, None, (), 0, (), 0)  # a batch's design needs rows, not the flow
 
@@ -307,13 +308,10 @@ def _level_findings(plan, wording: Table, variable, column: _Column) -> list[Pro
     if outside.count:
         foreign = {v: n for v, n in column.levels.items() if v not in variable.levels}
         listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
-        folded = {level.casefold(): level for level in variable.levels}
-        hints = [f"`{v}` differs from the declared level `{folded[v.casefold()]}` only in case"
-                 for v in sorted(foreign) if v.casefold() in folded]
         problems.append(contract._problem(
             plan, wording, variable.name, outside,
             f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
-            "unknown-level", "; ".join(hints) or None))
+            "unknown-level", level_hints(foreign, variable.levels)))
     if variable.name not in {a.exposure for a in plan.analyses}:
         for level in variable.levels:
             if level not in column.levels:

@@ -29,9 +29,25 @@ def shown(match: str, word: str) -> str:
     two look the same (they differ only in how their letters are encoded)."""
     if _nfc(match) != _nfc(word):
         return f"`{match}`"
-    escaped = match.encode("ascii", "backslashreplace").decode("ascii")
-    return (f"`{escaped}` (the same letters as `{word}`, in other Unicode code points: "
-            "names must match code point for code point)")
+    return (f"`{_code_points(match)}` (the same letters as `{word}`, in other Unicode code "
+            "points: names must match code point for code point)")
+
+
+def level_hints(values: Iterable[str], levels: Iterable[str]) -> str | None:
+    """A hint for data values outside the declared levels that are a declared level but for
+    case, or but for how its letters are encoded; None when none is."""
+    levels = list(levels)
+    composed = {_nfc(level): level for level in levels}
+    folded = {_nfc(level).casefold(): level for level in levels}
+    hints = []
+    for value in sorted(values):
+        if _nfc(value) in composed:
+            hints.append(f"`{_code_points(value)}` is the declared level "
+                         f"`{composed[_nfc(value)]}` in other Unicode code points")
+        elif _nfc(value).casefold() in folded:
+            hints.append(f"`{value}` differs from the declared level "
+                         f"`{folded[_nfc(value).casefold()]}` only in case")
+    return "; ".join(hints) or None
 
 
 def did_you_mean(word: object, known: Iterable[str]) -> str | None:
@@ -42,3 +58,8 @@ def did_you_mean(word: object, known: Iterable[str]) -> str | None:
 
 def _nfc(text: str) -> str:
     return unicodedata.normalize("NFC", text)
+
+
+def _code_points(text: str) -> str:
+    """``text`` with every character beyond ASCII as its escape: ``dur\\xe9e``."""
+    return text.encode("ascii", "backslashreplace").decode("ascii")

@@ -118,6 +118,19 @@ def test_a_level_outside_the_declared_levels_hints_at_letter_case(tmp_path):
     assert problem.hint == "`Walking` differs from the declared level `walking` only in case"
 
 
+def test_a_level_in_other_code_points_is_spelt_out(tmp_path):
+    # the plan declares sud-est with a composed é (U+00E9); one row has e + U+0301, which
+    # prints the same: the hint names the code points
+    dictionary = {**DICTIONARY, "site": {"kind": "categorical",
+                                         "levels": ["north", "south", "sud-\u00e9st"]}}
+    rows = _edit(2, "site", "sud-e\u0301st")
+    plan = make_plan(dictionary, row_id="pid", analyses=[make_analysis("main", "sbp", "arm")])
+    problem = _only(_findings(tmp_path, rows, plan), "unknown-level")
+    assert problem.details["rows"] == 1
+    assert problem.hint == ("`sud-e\\u0301st` is the declared level `sud-\u00e9st` in other "
+                            "Unicode code points")
+
+
 def test_binary_values_other_than_0_and_1(tmp_path):
     rows = _edit(0, "smoker", "2")
     rows[1] = rows[1].replace(",61,1,", ",61,1.0,")  # 1.0 is a one
