@@ -164,12 +164,7 @@ def _empty_reason(variable: Variable, allowed: Allowed, condition: Condition) ->
     if variable.kind == "identifier":
         return (f"it restricts the identifier {variable.name} to listed codes, and a rehearsal "
                 "makes every identifier unique")
-    declared = declared_range(variable)
-    return f"no value of {variable.name} is left{declared}"
-
-
-def declared_range(variable: Variable) -> str:
-    return variable.declared_range()
+    return f"no value of {variable.name} is left{variable.declared_range()}"
 
 
 def population_allowed(plan: Plan, population: Population, base: dict[str, Allowed],

@@ -219,7 +219,6 @@ def _check_bounds(ctx: Context, population: str, conditions: list[Condition]) ->
             return
 
 
-
 def _condition(ctx: Context, population: str, node: Mapping) -> Condition | None:
     op = next(key for key in node.entries if key != "variable")
     operand = node.get(op)

@@ -29,7 +29,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .allowed import (Allowed, analysis_problems, base_allowed, candidates, declared_range,
+from .allowed import (Allowed, analysis_problems, base_allowed, candidates,
                       distinct_values, integer_bounds, population_allowed)
 from .plan import Plan, Population, Variable
 from .problems import Exit, Problem, Stop
@@ -61,7 +61,7 @@ def layout(plan: Plan, rows: int, seed: int) -> Layout:
     base = base_allowed(plan)
     used = [plan.population(name) for name in dict.fromkeys(a.population for a in plan.analyses)
             if name is not None]
-    problems = [Problem(f"variable {v.name}: no value fits its declaration{declared_range(v)}"
+    problems = [Problem(f"variable {v.name}: no value fits its declaration{v.declared_range()}"
                         + (" and the positive values a log term or an offset needs"
                            if base[v.name].low_open and base[v.name].low == 0 else ""),
                         place=v.place, code="variable-empty")
