@@ -279,7 +279,9 @@ def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool)
                           "not-positive", "a log is defined only for positive values"))
     elif variable.kind == "categorical":
         codes, distinct = table.categories(name)
-        problems += _level_findings(plan, table, variable, codes, distinct)
+        problems += level_findings(plan, table, variable,
+                                   outside_levels(codes, distinct, variable.levels),
+                                   level_counts(codes, distinct))
     if name == plan.data.row_id:
         repeats, absent = identifier_faults(values)
         found.append((repeats, "identifier values repeated (row_id must be unique)",
@@ -299,26 +301,25 @@ def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool)
     return problems
 
 
-def _level_findings(plan: Plan, table: Table, variable: Variable, codes: np.ndarray,
-                    distinct: tuple[str, ...]) -> list[Problem]:
+def level_findings(plan: Plan, table: Table, variable: Variable, outside: Tally,
+                   counts: dict[str, int]) -> list[Problem]:
+    """A categorical column's values outside its declared levels (``outside``), and the
+    declared levels that never occur, from the rows each value holds (``counts``: one
+    column's in memory, or merged over a streamed run's batches)."""
     problems = []
-    outside = outside_levels(codes, distinct, variable.levels)
     if outside.count:
-        counts = level_counts(codes, distinct)
         foreign = {v: n for v, n in counts.items() if v not in variable.levels}
         listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
         problems.append(_problem(
             plan, table, variable.name, outside,
             f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
             "unknown-level", level_hints(foreign, variable.levels)))
-    exposures = {a.exposure for a in plan.analyses}
-    if variable.name not in exposures:  # an exposure's levels are checked per analysis
-        seen = level_counts(codes, distinct)
-        for level in variable.levels:
-            if level not in seen:
-                problems.append(Problem(f"the declared level `{level}` never occurs",
-                                        column=variable.name, severity="warning",
-                                        code="level-never-seen", details={"level": level}))
+    if variable.name not in {a.exposure for a in plan.analyses}:
+        # an exposure's levels are checked per analysis (sample_findings)
+        problems += [Problem(f"the declared level `{level}` never occurs", column=variable.name,
+                             severity="warning", code="level-never-seen",
+                             details={"level": level})
+                     for level in variable.levels if level not in counts]
     return problems
 
 

@@ -25,7 +25,6 @@ from .batches import FileFacts, NumbersAsText, batch_tables
 from .bound import BoundData, FlowStep, Sample, SampleFlow, Table, Tally
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop, stop_if_errors
-from .suggest import level_hints
 
 _NO_FLOW = SampleFlow(0, None, (), 0, (), 0)  # a batch's design needs rows, not the flow
 
@@ -290,7 +289,9 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
                 hint = hints.get(code)
             problems.append(contract._problem(plan, wording, name, found, message, code, hint))
         if variable.kind == "categorical":
-            problems += _level_findings(plan, wording, variable, column)
+            problems += contract.level_findings(  # from the merged tally and level counts
+                plan, wording, variable, column.tallies.get("unknown-level", Tally()),
+                column.levels)
         if variable.max_missing is not None:
             share = column.absent.count / meta.rows_read
             if share > variable.max_missing:
@@ -298,26 +299,6 @@ def _findings(plan: Plan, meta: Table, facts: FileFacts, columns, example_ids) -
                     plan, wording, name, column.absent,
                     f"missing in {share:.1%} of rows, above the declared max_missing "
                     f"{variable.max_missing:.1%}", "too-many-missing", None))
-    return problems
-
-
-def _level_findings(plan, wording: Table, variable, column: _Column) -> list[Problem]:
-    """contract._level_findings, from merged level counts and the merged outside tally."""
-    problems = []
-    outside = column.tallies.get("unknown-level", Tally())
-    if outside.count:
-        foreign = {v: n for v, n in column.levels.items() if v not in variable.levels}
-        listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
-        problems.append(contract._problem(
-            plan, wording, variable.name, outside,
-            f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
-            "unknown-level", level_hints(foreign, variable.levels)))
-    if variable.name not in {a.exposure for a in plan.analyses}:
-        for level in variable.levels:
-            if level not in column.levels:
-                problems.append(Problem(f"the declared level `{level}` never occurs",
-                                        column=variable.name, severity="warning",
-                                        code="level-never-seen", details={"level": level}))
     return problems
 
 
