@@ -14,11 +14,19 @@ its report in a child process), it times:
     script    pandas.read_csv of the used columns, one statsmodels formula fit (smf.ols) per
               tier, and statsmodels.stats.anova.anova_lm(*fits) for the nested F table
     limit     pyarrow.csv.read_csv of the used columns, plus the sha256 of the file
+    compute   prespec's own work up to results.json, in a fresh process: the plan's checks,
+              the read and hash, bind, fits, characteristics and decisions; no report, no
+              render child, no bundle (a part of `prespec`, timed to show where its time goes)
 
 and prints the medians, the ratios prespec/script (target ≤ 0.5) and prespec/limit (target
 ≤ 1.5), each one's peak memory above an idle interpreter's against the in-memory size of the
 used columns (target ≤ 2×), prespec's also above its own loaded libraries, and the start-up
 time of `prespec check`.
+
+Last, the report alone: the HTML and PDF of the same results rendered in a process whose
+report libraries are loaded and warm (median of three renders), as the render child does
+once the results exist. It is the serial tail of every run, which no reading or fitting can
+hide, so it bounds prespec/limit from below.
 
 --streamed-big writes a CSV of --big-rows rows (default 20,000,000, about 8 GB; needs about
 10 GB free under bench/data), times one `prespec run --unlocked --stream` on it, prints the
@@ -115,6 +123,45 @@ with open(path, "rb") as handle:
 print(table.num_rows, digest.hexdigest(), file=sys.stderr)
 """
 
+# The run's work up to results.json, as `prespec run` does it (compiler/bundle.py), in a
+# fresh process of its own: what prespec adds to the limit before any report.
+COMPUTE = r"""
+import sys
+from compiler import bundle, results
+from compiler.pipeline import Stamp, analyse, compile_plan, data_path_for
+plan_path = sys.argv[1]
+plan = compile_plan(plan_path)
+analysed = analyse(plan, data_path_for(plan, None))
+document = bundle.results_document(analysed, Stamp(preregistered=False),
+                                   plan_bytes=open(plan_path, "rb").read(), state=None,
+                                   settings=None)
+print(len(results.to_bytes(document)), file=sys.stderr)
+"""
+
+# The report alone: the same results rendered in a warm process (the render child's state
+# when its job arrives); the analysis before it and the libraries' loading are not timed.
+REPORT = r"""
+import statistics, sys, time
+from compiler import bundle, renderer, results
+from compiler.pipeline import Stamp, analyse, compile_plan, data_path_for
+plan_path = sys.argv[1]
+plan = compile_plan(plan_path)
+analysed = analyse(plan, data_path_for(plan, None))
+document = bundle.results_document(analysed, Stamp(preregistered=False),
+                                   plan_bytes=open(plan_path, "rb").read(), state=None,
+                                   settings=None)
+fits, payload = analysed.fits, results.to_bytes(document)
+del analysed
+renderer.load_libraries()
+renderer._warm_up()
+times = []
+for _ in range(3):
+    started = time.perf_counter()
+    bundle.render(document, payload, fits, 0)
+    times.append(time.perf_counter() - started)
+print(f"{statistics.median(times):.6f}")
+"""
+
 IDLE = "import sys"
 # What a run holds before it touches data: the analysis libraries in the main process, and
 # the report's in the render child (compiler/renderer.py); their peaks, added, are prespec's
@@ -194,6 +241,15 @@ def prespec_command(plan: Path, out_root: Path, extra=()) -> list[str]:
     return [PRESPEC, "run", str(plan), "--unlocked", "--out", out, *extra]
 
 
+def report_alone(plan: Path) -> float:
+    """Median seconds of one report render (HTML and PDF) in a warm process."""
+    done = subprocess.run([PYTHON, "-c", REPORT, str(plan)], capture_output=True, text=True,
+                          cwd=ROOT)
+    if done.returncode != 0:
+        raise SystemExit(f"benchmark child failed ({done.returncode}): report\n{done.stderr}")
+    return float(done.stdout.split()[-1])
+
+
 def megabytes(n: float) -> str:
     return f"{n / 2**20:,.0f} MiB"
 
@@ -222,6 +278,7 @@ def benchmark(rows: int, repeat: int, keep: bool) -> None:
         "prespec": lambda: prespec_command(plan, out_root),
         "script": lambda: [PYTHON, "-c", SCRIPT, str(data), *tier_formulas()],
         "limit": lambda: [PYTHON, "-c", LIMIT, str(data), ",".join(USED)],
+        "compute": lambda: [PYTHON, "-c", COMPUTE, str(plan)],
     }
     try:
         times = {name: [] for name in commands}
@@ -238,6 +295,7 @@ def benchmark(rows: int, repeat: int, keep: bool) -> None:
         loaded = sum(statistics.median(measure([PYTHON, "-c", code])[1] for _ in range(3))
                      for code in (LOADED_MAIN, LOADED_RENDER))
         check = statistics.median(measure([PRESPEC, "check", str(plan)])[0] for _ in range(5))
+        report = report_alone(plan)
     finally:
         shutil.rmtree(out_root, ignore_errors=True)
         if not keep:
@@ -264,6 +322,10 @@ def benchmark(rows: int, repeat: int, keep: bool) -> None:
     print(f"  prespec memory above its loaded libraries ({megabytes(loaded)}, main process "
           f"and render child) = {(prespec_peak - loaded) / used_bytes:.2f}× the used columns")
     print(f"  prespec check start-up = {check:.3f} s  (target < 1)")
+    print(f"  compute / limit  = {median['compute'] / median['limit']:.2f} of the medians "
+          f"(prespec's work up to results.json, no report)")
+    print(f"  report alone     = {report:.2f} s = {report / median['limit']:.2f}× the limit "
+          f"(HTML and PDF in a warm process, median of 3)")
 
 
 def streamed_big(rows: int, keep: bool) -> None:
