@@ -37,6 +37,7 @@ from __future__ import annotations
 
 import argparse
 import compileall
+import hashlib
 import os
 import shutil
 import statistics
@@ -141,7 +142,7 @@ print(len(results.to_bytes(document)), file=sys.stderr)
 # The report alone: the same results rendered in a warm process (the render child's state
 # when its job arrives); the analysis before it and the libraries' loading are not timed.
 REPORT = r"""
-import statistics, sys, time
+import hashlib, statistics, sys, time
 from compiler import bundle, renderer, results
 from compiler.pipeline import Stamp, analyse, compile_plan, data_path_for
 plan_path = sys.argv[1]
@@ -159,7 +160,7 @@ for _ in range(3):
     started = time.perf_counter()
     bundle.render(document, payload, fits, 0)
     times.append(time.perf_counter() - started)
-print(f"{statistics.median(times):.6f}")
+print(f"{statistics.median(times):.6f} {hashlib.sha256(payload).hexdigest()}")
 """
 
 IDLE = "import sys"
@@ -241,13 +242,19 @@ def prespec_command(plan: Path, out_root: Path, extra=()) -> list[str]:
     return [PRESPEC, "run", str(plan), "--unlocked", "--out", out, *extra]
 
 
-def report_alone(plan: Path) -> float:
-    """Median seconds of one report render (HTML and PDF) in a warm process."""
+def report_alone(plan: Path, bundles: Path) -> float:
+    """Median seconds of one report render (HTML and PDF) in a warm process, after checking
+    that it renders the very results the timed runs sealed (the same work, not a lookalike)."""
     done = subprocess.run([PYTHON, "-c", REPORT, str(plan)], capture_output=True, text=True,
                           cwd=ROOT)
     if done.returncode != 0:
         raise SystemExit(f"benchmark child failed ({done.returncode}): report\n{done.stderr}")
-    return float(done.stdout.split()[-1])
+    seconds, digest = done.stdout.split()[-2:]
+    sealed = {hashlib.sha256(p.read_bytes()).hexdigest() for p in bundles.glob("*/results.json")}
+    if sealed != {digest}:
+        raise SystemExit(f"the report was timed on other results ({digest}) than the runs "
+                         f"sealed ({', '.join(sorted(sealed)) or 'none'})")
+    return float(seconds)
 
 
 def megabytes(n: float) -> str:
@@ -295,7 +302,7 @@ def benchmark(rows: int, repeat: int, keep: bool) -> None:
         loaded = sum(statistics.median(measure([PYTHON, "-c", code])[1] for _ in range(3))
                      for code in (LOADED_MAIN, LOADED_RENDER))
         check = statistics.median(measure([PRESPEC, "check", str(plan)])[0] for _ in range(5))
-        report = report_alone(plan)
+        report = report_alone(plan, out_root)
     finally:
         shutil.rmtree(out_root, ignore_errors=True)
         if not keep:
