@@ -11,7 +11,7 @@ any other exposure is summarised overall only, as a variable of its own.
 
 Quartiles are numpy.quantile's default: linear interpolation between order statistics
 (Hyndman & Fan 1996, definition 7). When the exposure groups make up the analysed rows, the
-overall cell is built from the groups' sorted values and moments rather than from another
+overall cell is built from the groups' selected values and moments rather than from another
 pass over each column: the same quartiles to the bit, the mean and SD within an ulp or two.
 Everything returned is a plain int, float, str or None.
 """
@@ -25,7 +25,7 @@ import numpy as np
 
 from .bound import BoundData, Table
 from .inference import finite_or_none
-from .order_stats import quartiles, quartiles_of_sorted
+from .order_stats import quartiles_by_selection, quartiles_of_selected
 from .plan import Analysis, Plan, Variable
 from .population import holds, missing_mask
 
@@ -62,7 +62,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     # (every branch mispredicted), and gives the same values in the same order.
     picks = [np.flatnonzero(analysed & m) for m in group_masks]
     # the groups split the analysed rows (bind keeps no row without a declared exposure
-    # level): the overall cell can then come from the groups' sorted values and moments,
+    # level): the overall cell can then come from the groups' selected values and moments,
     # and needs no positions of its own
     split = grouped and sum(len(rows) for rows in picks) == int(np.count_nonzero(analysed))
     overall_rows = None if split else np.flatnonzero(analysed)
@@ -73,8 +73,8 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
         values = table.columns[variable.name]
 
         def stats(group: np.ndarray, rows: np.ndarray, parts=None):
-            # parts: the groups' sorted values and moments, when they make up these rows
-            picked = values[rows] if parts is None else None  # a copy _describe may sort
+            # parts: the groups' selected values and moments, when they make up these rows
+            picked = values[rows] if parts is None else None  # a copy _describe reorders
             out, moments = _describe(variable, picked, parts)
             out["missing"] = int(np.count_nonzero(population & group & absent))
             return out, (picked, moments)
@@ -156,9 +156,10 @@ def _no_rows() -> dict:
 
 def _describe(variable: Variable, values: np.ndarray | None,
               parts=None) -> tuple[dict, Moments | None]:
-    """One cell, and for a continuous or count variable its moments. ``values`` is sorted in
-    place, unless ``parts`` (its values split into parts, each sorted and with its moments)
-    gives its order statistics and moments instead (``values`` is then None)."""
+    """One cell, and for a continuous or count variable its moments. ``values`` is reordered
+    in place (``quartiles_by_selection``), unless ``parts`` (its values split into parts,
+    each reordered so and with its moments) gives its order statistics and moments instead
+    (``values`` is then None)."""
     pieces = [values] if parts is None else [part for part, _ in parts]
     n = sum(len(piece) for piece in pieces)
 
@@ -173,14 +174,14 @@ def _describe(variable: Variable, values: np.ndarray | None,
         return _no_rows(), Moments()
     if parts is None:
         moments = Moments.of(values)
-        # last, because it sorts: ``values`` is this group's own copy (picked by position)
-        q1, median, q3 = quartiles(values)
-        low, high = values[0], values[-1]
+        # last, because it reorders ``values``, this group's own copy (picked by position)
+        q1, median, q3 = quartiles_by_selection(values)
+        low, high = np.min(values), np.max(values)
     else:
         moments = Moments.pooled([m for _, m in parts])
-        q1, median, q3 = quartiles_of_sorted(pieces)
-        ends = [piece[[0, -1]] for piece in pieces if len(piece)]
-        low, high = min(e[0] for e in ends), max(e[1] for e in ends)
+        q1, median, q3 = quartiles_of_selected(pieces)
+        low = min(np.min(piece) for piece in pieces if len(piece))
+        high = max(np.max(piece) for piece in pieces if len(piece))
     out = {"n": n, **moments.cell(),
            "median": finite_or_none(median), "q1": finite_or_none(q1),
            "q3": finite_or_none(q3), "min": finite_or_none(low), "max": finite_or_none(high)}
