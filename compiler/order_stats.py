@@ -62,19 +62,17 @@ def quartiles_of_selected(parts: Sequence[np.ndarray]) -> np.ndarray:
     parts = [part for part in parts if len(part)]
     n = sum(len(part) for part in parts)
     below, above, _ = _positions(n)
+    own = [_positions(len(part))[:2] for part in parts]  # each part's ranks at each point
     found: dict[int, float] = {}
     for point in range(len(_QUARTILE_POINTS)):
-        ends = [(part[low[point]], part[high[point]])
-                for part, (low, high, _) in ((p, _positions(len(p))) for p in parts)]
-        least = min(low for low, _ in ends)
-        greatest = max(high for _, high in ends)
+        least = min(part[lower[point]] for part, (lower, _) in zip(parts, own))
+        greatest = max(part[upper[point]] for part, (_, upper) in zip(parts, own))
         under = 0
         inside = []
         for part in parts:
-            less = part < least
-            under += int(np.count_nonzero(less))
-            np.logical_not(less, out=less)
-            inside.append(part[less & (part <= greatest)])
+            before = part < least
+            under += int(np.count_nonzero(before))
+            inside.append(part[~before & (part <= greatest)])
         bracket = np.concatenate(inside)
         ranks = {int(below[point]) % n - under, int(above[point]) % n - under}
         _select(bracket, ranks)
