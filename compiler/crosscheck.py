@@ -60,8 +60,11 @@ def schema_errors(document) -> list[str]:
     from .resources import schema_path
 
     schema = json.loads(schema_path("results.schema.json").read_text(encoding="utf-8"))
-    errors = sorted(Draft202012Validator(schema).iter_errors(document),
-                    key=lambda e: [str(p) for p in e.absolute_path])
+    try:
+        errors = sorted(Draft202012Validator(schema).iter_errors(document),
+                        key=lambda e: [str(p) for p in e.absolute_path])
+    except RecursionError:
+        return ["it is nested too deeply to be a results document"]
     return [f"at {'/'.join(str(p) for p in e.absolute_path) or 'the top'}: {e.message}"
             for e in errors]
 
@@ -69,6 +72,14 @@ def schema_errors(document) -> list[str]:
 def check_contents(folder: Path, manifest: dict) -> tuple[list[Problem], list[str]]:
     """Every cross-check of a bundle whose files match its manifest: (problems, what was
     established, as lines)."""
+    try:
+        return _check_contents(folder, manifest)
+    except (KeyError, TypeError, AttributeError, RecursionError) as exc:  # a last guard
+        return [_fail(f"results.json: lacks a part every results document has, or holds it "
+                      f"in another shape ({type(exc).__name__}: {exc})", "results.json")], []
+
+
+def _check_contents(folder: Path, manifest: dict) -> tuple[list[Problem], list[str]]:
     results, why = read_json(folder / "results.json")
     if why is None and not isinstance(results, dict):
         why = "it is not a JSON object"
@@ -168,10 +179,9 @@ def _stamp_and_lock(folder: Path, manifest: dict, results: dict):
 
 def _records(manifest: dict, results: dict) -> list[Problem]:
     """The manifest's own copies of results.json's records."""
-    copies = {"data.sha256": (manifest["data"] or {}).get("sha256"),
-              "data.file": (manifest["data"] or {}).get("file"),
-              "environment": manifest.get("environment"),
-              "plan.id": (manifest["plan"] or {}).get("id")}
+    data, plan = manifest.get("data") or {}, manifest.get("plan") or {}
+    copies = {"data.sha256": data.get("sha256"), "data.file": data.get("file"),
+              "environment": manifest.get("environment"), "plan.id": plan.get("id")}
     stored = {"data.sha256": results["data"]["sha256"], "data.file": results["data"]["file"],
               "environment": results["environment"], "plan.id": results["plan"]["id"]}
     changed = [f"{name}: {json.dumps(copies[name], ensure_ascii=False)} in the manifest, "
@@ -185,7 +195,7 @@ def _plan_digest(folder: Path, plan, manifest: dict, results: dict, lock_plan: s
     from .canonical import plan_digest
 
     digest = plan_digest(plan)
-    recorded = {"manifest.json": (manifest["plan"] or {}).get("sha256"),
+    recorded = {"manifest.json": (manifest.get("plan") or {}).get("sha256"),
                 "results.json": results["plan"]["sha256"]}
     if lock_plan is not None:
         recorded["plan.lock.json"] = lock_plan

@@ -5,7 +5,8 @@ the same parent, so the rename stays on one file system), every file fsynced and
 read-only (0444), then renamed into place in one step. A crash before the rename leaves no
 bundle, only the temporary folder, which the next seal into the same parent removes once the
 process that wrote it is gone. The bundle folder itself stays writable, so that ``rm -r``
-works without a chmod; an added file is caught by ``prespec verify``.
+works without a chmod; an added file is caught by ``prespec verify``, as is a file others may
+write (the modes are not in the digests, which copies and version control would break).
 
 An existing target is never overwritten: the run stops with exit 2 before any work.
 
