@@ -24,6 +24,8 @@ from pathlib import Path
 from .canonical import canonical_bytes, sha256_hex
 
 LOCK_STUB_FORMAT = "prespec-lock-stub/1"
+STUB_REASON = {"unlocked": "this run did not use a lock (--unlocked)",
+               "rehearsal": "a rehearsal never uses a lock"}
 DEFAULT_REHEARSAL_ROWS = 500
 
 
@@ -47,10 +49,9 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
         data_path = data_path_for(plan, data)
         _say(progress, f"reading and fitting {data_path}")
         stamp = Stamp(preregistered=state is not None)
-        why = "this run did not use a lock (--unlocked)"
         # no local holds the analysis: _finish lets the data go before the report (see there)
         return _finish(analyse(plan, data_path, stream=stream, progress=progress), stamp,
-                       plan_bytes=plan_bytes, state=state, stub_reason=why, target=target,
+                       plan_bytes=plan_bytes, state=state, target=target,
                        key=key, settings=None, progress=progress, renderer=renderer)
 
 
@@ -86,8 +87,7 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
         _say(progress, f"rehearsing on {note}")
         stamp = Stamp(preregistered=False, rehearsal=True, note=note)
         return _finish(analyse(plan, data_path, table=rehearsal_table(plan, settings, data_path)),
-                       stamp, plan_bytes=plan_bytes, state=None,
-                       stub_reason="a rehearsal never uses a lock", target=target, key=None,
+                       stamp, plan_bytes=plan_bytes, state=None, target=target, key=None,
                        settings=settings, progress=progress, renderer=renderer)
 
 
@@ -104,11 +104,26 @@ def rehearsal_table(plan, settings: dict, data_path):
 
 
 def results_document(analysed, stamp, *, plan_bytes: bytes, state, settings) -> dict:
+    """The results document. Its decisions and assumption outcomes are those the decide pass
+    gives on the document's own stored numbers (stored_fits.settled), so that `verify` can
+    re-derive every verdict from results.json alone and must find the same records."""
     from . import results
     from .environment import environment
+    from .stored_fits import settled
 
-    return results.build(analysed, stamp=stamp, plan_file_sha256=sha256_hex(plan_bytes),
-                         lock=state, environment=environment(), rehearsal_settings=settings)
+    document = results.build(analysed, stamp=stamp, plan_file_sha256=sha256_hex(plan_bytes),
+                             lock=state, environment=environment(),
+                             rehearsal_settings=settings)
+    document["decisions"], document["assumptions"] = settled(analysed.plan, document)
+    return document
+
+
+def lock_stub(stamp) -> bytes:
+    """plan.lock.json of a bundle that matches no lock (``--unlocked`` runs, rehearsals):
+    the stub says why; verify expects exactly these bytes for the bundle's stamp."""
+    why = (STUB_REASON["rehearsal"] if stamp.rehearsal else STUB_REASON["unlocked"])
+    return canonical_bytes({"format": LOCK_STUB_FORMAT, "locked": False, "stamp": stamp.banner,
+                            "why": why})
 
 
 def report_epoch(state) -> int:
@@ -136,7 +151,7 @@ def render(document: dict, results_bytes: bytes, fits, epoch: int,
     return renderer.render(document, plots, sha256_hex(results_bytes), epoch)
 
 
-def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, settings,
+def _finish(analysed, stamp, *, plan_bytes, state, target, key, settings,
             progress, renderer=None):
     from . import results, seal
     from .cli import Report
@@ -151,8 +166,7 @@ def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, set
     results_bytes = results.to_bytes(document)
     _say(progress, "rendering the report")
     html, pdf = render(document, results_bytes, fits, report_epoch(state), renderer)
-    lock_bytes = state.data if state is not None else canonical_bytes(
-        {"format": LOCK_STUB_FORMAT, "locked": False, "stamp": stamp.banner, "why": stub_reason})
+    lock_bytes = state.data if state is not None else lock_stub(stamp)
     files = {"results.json": results_bytes, "report.html": html, "report.pdf": pdf,
              "plan.yaml": plan_bytes, "plan.lock.json": lock_bytes}
     about = {"stamp": stamp.banner,

@@ -33,8 +33,6 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
     bound)`` gives the sample characteristics; by default they are the ones ``analysed``
     carries (the pipeline computes them beside the fits), else compiler.characteristics'.
     """
-    from .canonical import plan_digest
-
     if summarise is None and analysed.characteristics is not None:
         def summarise(plan, analysis, bound, found=analysed.characteristics):
             return found[analysis.id]
@@ -48,9 +46,7 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
         "rehearsal": bool(stamp.rehearsal),
         "rehearsal_note": stamp.note if stamp.rehearsal else None,
         "rehearsal_settings": json_ready(rehearsal_settings) if stamp.rehearsal else None,
-        "plan": {"id": plan.study.id, "title": plan.study.title, "version": plan.study.version,
-                 "sha256": plan_digest(plan), "file_sha256": plan_file_sha256,
-                 "language": plan.language},
+        "plan": plan_header(plan, plan_file_sha256),
         "data": {"sha256": table.sha256, "rows_read": int(table.rows_read),
                  "file": Path(table.path).name if table.path else None,
                  "format": table.format, "size_bytes": int(table.size_bytes),
@@ -59,8 +55,8 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
         "contract": [_finding(p) for p in bound.findings],
         "analyses": [_analysis(plan, a, bound, fit, summarise)
                      for a, fit in zip(plan.analyses, analysed.fits)],
-        "decisions": [_verdict(v) for v in analysed.verdicts],
-        "assumptions": [_assumption(o) for o in analysed.assumptions],
+        "decisions": decision_records(analysed.verdicts),
+        "assumptions": assumption_records(analysed.assumptions),
         "amendments": lock.amendments if lock is not None else [],
         "lock": None if lock is None else {"sha256": lock.sha256, "frozen_at": lock.frozen_at,
                                            "amended_at": lock.amended_at},
@@ -194,28 +190,53 @@ def _step(s) -> dict:
     return {"reason": s.reason, "variable": s.variable, "excluded": int(s.excluded)}
 
 
+def plan_header(plan, plan_file_sha256: str) -> dict:
+    """The document's ``plan`` part: all of it follows from the plan and its file's digest."""
+    from .canonical import plan_digest
+
+    return {"id": plan.study.id, "title": plan.study.title, "version": plan.study.version,
+            "sha256": plan_digest(plan), "file_sha256": plan_file_sha256,
+            "language": plan.language}
+
+
+def analysis_header(analysis) -> dict:
+    """The fields of an analysis' results that follow from the plan alone."""
+    return {"id": analysis.id, "family": analysis.family, "link": LINKS[analysis.family],
+            "outcome": analysis.outcome, "exposure_variable": analysis.exposure,
+            "offset": analysis.offset, "population": analysis.population,
+            "covariance": analysis.covariance.label, "confidence": number(analysis.confidence),
+            "report_tier": analysis.report_tier}
+
+
 def _analysis(plan, analysis, bound, fit, summarise) -> dict:
     sample = bound.sample(analysis.id)
     flow = sample.flow
     return {
-        "id": analysis.id, "family": analysis.family, "link": LINKS[analysis.family],
-        "outcome": analysis.outcome, "exposure_variable": analysis.exposure,
-        "offset": analysis.offset,
-        "population": analysis.population, "rows_in_population": int(flow.rows_in_population),
-        "n": int(fit.n), "covariance": analysis.covariance.label,
-        "confidence": number(analysis.confidence), "report_tier": analysis.report_tier,
-        "events": None if fit.events is None else int(fit.events),
+        **analysis_header(analysis), "rows_in_population": int(flow.rows_in_population),
         "flow": {"rows_read": int(flow.rows_read),
                  "by_condition": [_step(s) for s in flow.by_condition],
                  "rows_in_population": int(flow.rows_in_population),
                  "by_missing": [_step(s) for s in flow.by_missing], "n": int(flow.n)},
         "characteristics": json_ready(summarise(plan, analysis, bound)),
-        "tiers": [_tier(t) for t in fit.tiers],
-        "comparisons": [_comparison(c) for c in fit.comparisons],
-        "exposure": [_exposure(r) for r in fit.exposure],
-        "diagnostics": _diagnostics(fit.diagnostics),
-        "warnings": list(fit.warnings),
+        **fit_parts(fit),
     }
+
+
+def fit_parts(fit) -> dict:
+    """An analysis' fit as the document stores it (what stored_fits.fits_of reads back)."""
+    return {"n": int(fit.n), "events": None if fit.events is None else int(fit.events),
+            "tiers": [_tier(t) for t in fit.tiers],
+            "comparisons": [_comparison(c) for c in fit.comparisons],
+            "exposure": [_exposure(r) for r in fit.exposure],
+            "diagnostics": _diagnostics(fit.diagnostics), "warnings": list(fit.warnings)}
+
+
+def decision_records(verdicts) -> list[dict]:
+    return [_verdict(v) for v in verdicts]
+
+
+def assumption_records(outcomes) -> list[dict]:
+    return [_assumption(o) for o in outcomes]
 
 
 def _verdict(v) -> dict:

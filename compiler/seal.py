@@ -5,7 +5,8 @@ the same parent, so the rename stays on one file system), every file fsynced and
 read-only (0444), then renamed into place in one step. A crash before the rename leaves no
 bundle, only the temporary folder, which the next seal into the same parent removes once the
 process that wrote it is gone. The bundle folder itself stays writable, so that ``rm -r``
-works without a chmod; an added file is caught by ``prespec verify``.
+works without a chmod; an added file is caught by ``prespec verify``, as is a file others may
+write (the modes are not in the digests, which copies and version control would break).
 
 An existing target is never overwritten: the run stops with exit 2 before any work.
 
@@ -14,7 +15,8 @@ sha256, the plan, data and results digests, the environment, the stamp, the run 
 only wall-clock time in a bundle), an optional signature record, and ``manifest_sha256``:
 the digest of the manifest's canonical bytes without that field. With a signing key, the
 Ed25519 signature of the exact bytes of manifest.json is written, raw (64 bytes), to
-manifest.sig; it checks with ``openssl pkeyutl -verify -pubin -inkey PUB -rawin
+manifest.sig, and the manifest declares it with the public key (``signature_record``); it
+checks with ``openssl pkeyutl -verify -pubin -inkey PUB -rawin
 -in manifest.json -sigfile manifest.sig``.
 
 Test hook: when ``PRESPEC_TEST_PAUSE_BEFORE_SEAL`` holds a number of seconds, sealing sleeps
@@ -108,11 +110,25 @@ def load_signing_key(path: str | Path):
     return key
 
 
-def public_key_sha256(public_key) -> str:
+def public_key_raw(public_key) -> bytes:
+    """The 32 bytes of an Ed25519 public key (RFC 8032)."""
     from cryptography.hazmat.primitives import serialization
 
-    raw = public_key.public_bytes(serialization.Encoding.Raw, serialization.PublicFormat.Raw)
-    return sha256_hex(raw)
+    return public_key.public_bytes(serialization.Encoding.Raw, serialization.PublicFormat.Raw)
+
+
+def public_key_sha256(public_key) -> str:
+    return sha256_hex(public_key_raw(public_key))
+
+
+def signature_record(public_key) -> dict:
+    """The manifest's signature declaration. It carries the public key itself (hex), so that
+    verify can check the signature without ``--key``: a signature that no longer matches, or
+    one made by another key, is caught from the bundle alone; ``--key`` then says whose key it
+    is. The declaration is covered by manifest_sha256 and by the signature."""
+    return {"file": SIGNATURE, "algorithm": "Ed25519",
+            "public_key": public_key_raw(public_key).hex(),
+            "public_key_sha256": public_key_sha256(public_key)}
 
 
 def manifest_digest(manifest: dict) -> str:
@@ -141,9 +157,7 @@ def seal(target: Path, files: dict[str, bytes], about: dict, *, run_at: str,
         manifest = {"format": MANIFEST_FORMAT, **about, "run_at": run_at,
                     "files": [{"path": name, "size": len(data), "sha256": sha256_hex(data)}
                               for name, data in sorted(files.items())],
-                    "signature": None if key is None else {
-                        "file": SIGNATURE, "algorithm": "Ed25519",
-                        "public_key_sha256": public_key_sha256(key.public_key())}}
+                    "signature": None if key is None else signature_record(key.public_key())}
         manifest["manifest_sha256"] = manifest_digest(manifest)
         manifest_bytes = canonical_bytes(manifest)
         _write(temporary / MANIFEST, manifest_bytes)

@@ -1,9 +1,17 @@
 """`prespec verify DIR [--data FILE] [--key PUB]`: check a sealed bundle offline.
 
 Intact means: manifest.json is canonical JSON whose ``manifest_sha256`` matches its content;
-every file it lists exists with its size and sha256; no other file is present (manifest.sig
-only when the manifest declares a signature); the manifest's plan and results digests agree
-with the files. With ``--key``, the Ed25519 signature of manifest.json must check.
+every file it lists exists with its size and sha256, and no other file is present
+(manifest.sig only when the manifest declares a signature); the five files every bundle holds
+are listed; no file may be written by others than its owner (the seal makes them 0444); and
+the contents agree with one another (compiler.crosscheck: the stamp, the plan's canonical
+digest, the lock, results.json's schema, every verdict re-derived from its stored numbers).
+
+A declared signature is checked with the public key the manifest carries, so an edited or
+replaced signature is caught without ``--key``; that only shows the bundle is as the holder
+of *some* key sealed it, and the output names the key's digest. With ``--key``, the key must
+be that one. An unsigned bundle is self-consistent only: whoever can edit it can recompute
+every digest.
 
 With ``--data FILE``, the bundled plan.yaml is run again on FILE with the bundle's own stamp
 and lock, and the new results.json bytes are compared with the bundled ones; every value
@@ -35,16 +43,43 @@ def verify(folder, *, data=None, key=None):
     public = load_public_key(key) if key is not None else None
     problems, lines, manifest = check_bundle(folder, key, public)
     payload = {"bundle": str(folder), "intact": not problems, "rerun": None}
-    if not problems:
+    if problems:
+        lines = []  # what agreed is beside the point when something does not
+    else:
         lines.insert(0, f"{folder}: intact: {len(manifest['files'])} files match the manifest "
                         f"(manifest sha256 {manifest['manifest_sha256'][:12]}), {manifest['stamp']}")
-        payload.update(stamp=manifest["stamp"], manifest_sha256=manifest["manifest_sha256"])
+        lines.append(NOT_OFFLINE)
+        signature = manifest.get("signature")
+        lines.append(_signature_words(signature, key) if signature else UNSIGNED)
+        payload.update(stamp=manifest["stamp"], manifest_sha256=manifest["manifest_sha256"],
+                       signed=None if not signature else {
+                           "public_key_sha256": signature["public_key_sha256"],
+                           "key_checked": key is not None})
         if data is not None:
             problems, more = rerun(folder, Path(data))
             lines += more
             payload["rerun"] = "different" if problems else "identical"
     return Report(exit_code=Exit.NOT_INTACT if problems else Exit.OK, lines=lines,
                   payload=payload, problems=tuple(problems))
+
+
+REQUIRED = ("plan.lock.json", "plan.yaml", "report.html", "report.pdf", "results.json")
+SEALED_MODE = 0o444
+NOT_OFFLINE = ("  not re-derived offline: the fits' numbers in results.json, and report.html and "
+               "report.pdf (sealed by their digests only); give --data FILE to re-run the plan "
+               "and compare results.json")
+UNSIGNED = ("unsigned: self-consistent only (whoever can edit the bundle can recompute every "
+            "digest); sign bundles with run --sign KEY to bind them to a key")
+
+
+def _signature_words(signature: dict, key) -> str:
+    digest = str(signature.get("public_key_sha256"))
+    if key is not None:
+        return (f"signature checks with {key} (Ed25519, public key sha256 {digest[:12]}…): the "
+                "bundle is as the holder of that key sealed it")
+    return (f"signed by key {digest[:12]}… (Ed25519; the signature checks with the public key "
+            "the manifest carries); give --key PUB to check it is yours: without it, anyone "
+            "could have re-signed an edited bundle with a key of their own")
 
 
 def _fail(message: str, code: str = "not-intact", **details) -> Problem:
@@ -73,7 +108,7 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
         return [_fail(f"{MANIFEST}: not a bundle manifest: {malformed}",
                       file=MANIFEST)], [], None
     listed = {entry["path"]: entry for entry in manifest["files"]}
-    problems, notes = [], []
+    problems, notes, owner_writable = [], [], []
     problems += [_fail(f"{name}: a symbolic link", file=name) for name in (MANIFEST, SIGNATURE)
                  if (folder / name).is_symlink()]
     if raw != canonical_bytes(manifest):
@@ -94,6 +129,8 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
                                   f"sha256 {sha256_hex(data)[:12]}; the manifest says size "
                                   f"{entry.get('size')}, sha256 {str(entry.get('sha256'))[:12]})",
                                   file=name))
+    problems += [_fail(f"{name}: missing: every bundle holds it, and the manifest does not "
+                       "list it", file=name) for name in REQUIRED if name not in listed]
     signature = manifest.get("signature")
     expected = set(listed) | {MANIFEST} | ({SIGNATURE} if signature else set())
     problems += [_fail(f"{name}: not listed in the manifest ({what})", file=name)
@@ -103,13 +140,47 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
         problems.append(_fail(f"{SIGNATURE}: missing, but the manifest says the bundle is "
                               "signed", file=SIGNATURE))
     elif signature:
-        problems_, note = _check_signature(folder, raw, signature, key, public)
-        problems += problems_
-        notes += note
+        problems += _check_signature(folder, raw, signature, key, public)
     elif key is not None:
         problems.append(_fail(f"{MANIFEST}: the bundle is not signed, but --key was given",
                               file=MANIFEST))
+    if not problems:  # the files are the sealed ones: do they agree with one another?
+        from .crosscheck import check_contents
+
+        found, notes = check_contents(folder, manifest)
+        problems += found
+    modes, owner_writable = _modes(folder, sorted(expected))
+    problems += modes
+    if owner_writable:
+        notes.append(f"  note: {len(owner_writable)} files are writable by their owner "
+                     f"({', '.join(owner_writable[:3])}{', …' if len(owner_writable) > 3 else ''}"
+                     "), as a copy from version control leaves them; the seal covers their "
+                     "bytes, which match")
     return problems, notes, manifest
+
+
+def _modes(folder: Path, names: list[str]) -> tuple[list[Problem], list[str]]:
+    """Files others may write (not intact: the seal made them 0444, and anyone could have put
+    other bytes there), and files only their owner may write (noted: version control and some
+    copies leave files 0644; the bytes are what the digests cover)."""
+    import stat
+
+    problems, owner = [], []
+    for name in names:
+        try:
+            status = (folder / name).lstat()
+        except OSError:
+            continue  # a missing file is reported above
+        if not stat.S_ISREG(status.st_mode):
+            continue  # links and other entries are reported above
+        mode = stat.S_IMODE(status.st_mode)
+        if mode & 0o022:
+            problems.append(_fail(f"{name}: writable by others (mode {mode:04o}); a sealed "
+                                  f"file is read-only ({SEALED_MODE:04o}): restore it with "
+                                  f"chmod {SEALED_MODE:o} if its bytes match", file=name))
+        elif mode & 0o200:
+            owner.append(f"{name} {mode:04o}")
+    return problems, owner
 
 
 def _malformed(manifest) -> str | None:
@@ -184,25 +255,61 @@ def load_public_key(key):
     return public
 
 
-def _check_signature(folder: Path, raw: bytes, signature: dict, key,
-                     public) -> tuple[list, list]:
-    from .seal import SIGNATURE, public_key_sha256
-
-    if public is None:
-        return [], [f"signed ({signature.get('algorithm')}, public key sha256 "
-                    f"{str(signature.get('public_key_sha256'))[:12]}); "
-                    "give --key PUB to check the signature"]
+def _check_signature(folder: Path, raw: bytes, signature: dict, key, public) -> list:
+    """The signature against the public key the manifest declares (so that a signature that
+    no longer matches, or another key's, is caught without --key), and with --key, that key
+    against the declared one."""
     from cryptography.exceptions import InvalidSignature
+    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
 
-    path = folder / SIGNATURE
+    from .seal import MANIFEST, SIGNATURE, public_key_sha256
+
+    declared = signature.get("public_key_sha256")
+    embedded = _declared_key(signature)
+    if isinstance(embedded, str):
+        if public is None:
+            return [_fail(f"{MANIFEST}: its signature declaration {embedded}, so the signature "
+                          "cannot be checked from the bundle alone (give --key PUB)",
+                          file=MANIFEST)]
+        embedded = None  # an older declaration: the given key checks the signature
+    sig = (folder / SIGNATURE).read_bytes()
+    if embedded is not None:
+        try:
+            Ed25519PublicKey.from_public_bytes(embedded).verify(sig, raw)
+        except (InvalidSignature, ValueError):
+            return [_fail(f"{SIGNATURE}: the signature does not check with the public key the "
+                          f"manifest declares (sha256 {str(declared)[:12]}…): manifest.json was "
+                          "changed after signing, or the signature is another key's",
+                          file=SIGNATURE)]
+    if public is None:
+        return []
+    if public_key_sha256(public) != declared:
+        return [_fail(f"{SIGNATURE}: the bundle was signed with another key (public key "
+                      f"sha256 {str(declared)[:12]}…), not {key} (sha256 "
+                      f"{public_key_sha256(public)[:12]}…)", file=SIGNATURE)]
     try:
-        public.verify(path.read_bytes(), raw)
+        public.verify(sig, raw)
     except InvalidSignature:
-        mismatch = public_key_sha256(public) != signature.get("public_key_sha256")
-        why = " (the bundle was signed with another key)" if mismatch else ""
-        return [_fail(f"{SIGNATURE}: the signature does not check with {key}{why}",
-                      file=SIGNATURE)], []
-    return [], [f"signature checks with {key} (Ed25519)"]
+        return [_fail(f"{SIGNATURE}: the signature does not check with {key}", file=SIGNATURE)]
+    return []
+
+
+def _declared_key(signature: dict):
+    """The raw public key the declaration carries, or what is wrong with the declaration."""
+    from .seal import SIGNATURE
+
+    if signature.get("algorithm") != "Ed25519" or signature.get("file") != SIGNATURE:
+        return f"is not Ed25519 in {SIGNATURE}"
+    text, declared = signature.get("public_key"), signature.get("public_key_sha256")
+    if not isinstance(text, str):
+        return "carries no public key"
+    try:
+        raw = bytes.fromhex(text)
+    except ValueError:
+        return "carries a public key that is not hexadecimal"
+    if len(raw) != 32 or sha256_hex(raw) != declared:
+        return "carries a public key whose sha256 is not the declared public_key_sha256"
+    return raw
 
 
 # ---------------------------------------------------------------------------------------------
