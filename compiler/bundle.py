@@ -22,6 +22,7 @@ import sys
 from pathlib import Path
 
 from .canonical import canonical_bytes, sha256_hex
+from .problems import Exit
 
 LOCK_STUB_FORMAT = "prespec-lock-stub/1"
 DEFAULT_REHEARSAL_ROWS = 500
@@ -163,8 +164,17 @@ def _finish(analysed, stamp, *, plan_bytes, state, stub_reason, target, key, set
              "environment": document["environment"]}
     _say(progress, f"sealing {target}")
     manifest = seal.seal(target, files, about, run_at=now_utc(), key=key)
-    return Report(lines=summary_lines(target, document, stamp),
+    return Report(exit_code=exit_code(document), lines=summary_lines(target, document, stamp),
                   payload=_payload(target, document, manifest))
+
+
+def exit_code(document: dict) -> Exit:
+    """0, or 6 for a rehearsal that shows the plan would not decide (a tier that cannot be
+    fitted, a rule left undetermined), so that CI stops before the plan is frozen. A run's
+    verdicts never change its exit code: a negative result is a result."""
+    if document["rehearsal"] and rehearsal_findings(document):
+        return Exit.WOULD_NOT_DECIDE
+    return Exit.OK
 
 
 def summary_lines(target, document: dict, stamp) -> list[str]:
@@ -174,7 +184,8 @@ def summary_lines(target, document: dict, stamp) -> list[str]:
     if stamp.rehearsal:
         to_fix = rehearsal_findings(document)
         if to_fix:
-            lines.append("rehearsal: fix before freezing:")
+            lines.append(f"rehearsal: the plan would not decide (exit {int(Exit.WOULD_NOT_DECIDE)}); "
+                         "fix before freezing:")
             lines += [f"  {item}" for item in to_fix]
         else:
             lines.append("rehearsal: every tier fitted, every rule evaluable")
