@@ -32,7 +32,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from . import synthesize
+from . import rehearse_clusters, synthesize
 from .allowed import Allowed
 from .effects import PlantedEffect, coefficients
 from .bound import BoundData, Sample, SampleFlow, Table
@@ -59,6 +59,7 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
     _check_arguments(rows=rows, seed=seed)
     plan_layout = synthesize.layout(plan, rows, seed)
     columns = synthesize.columns(plan, plan_layout, seed)
+    rehearse_clusters.apply(plan, plan_layout, columns, seed)
     made: set[str] = set()
     for analysis in plan.analyses:
         if analysis.outcome not in made:
@@ -72,8 +73,8 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
 
 
 def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table:
-    """The real table with the exposure column permuted over all rows by the seed; the rest
-    untouched. Only the exposure may be scrambled, and only when every analysis has it: any
+    """The real table with the exposure column permuted by the seed (over all rows, or by
+    cluster in a clustered plan: `rehearse_clusters.permutation`); the rest untouched. Only the exposure may be scrambled, and only when every analysis has it: any
     other column would leave the real exposure effects in the rehearsal's report.
 
     The permutation keeps the column's values, so the data contract sees the real values; the
@@ -101,7 +102,7 @@ def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table
                  "a scrambled rehearsal blinds one exposure, and this plan has several "
                  f"({', '.join(exposures)}): rehearse on synthetic data (no --data)")],
             Exit.PLAN_INVALID)
-    order = np.random.default_rng(seed).permutation(table.rows_read)
+    order = rehearse_clusters.permutation(plan, table, variable, seed)
     columns = dict(table.columns)
     columns[variable] = table.columns[variable][order]
     changes: dict = {"columns": columns}
@@ -181,11 +182,16 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
     # Rows the design could not take (a variable a rule keeps missing) sit at the average.
     eta = np.zeros(rows)
     eta[complete] = centred @ beta
+    clustered = rehearse_clusters.intercepts(plan, analysis, columns, seed, _MEAN_COUNT)
+    icc = 0.0
+    if clustered is not None:  # a random cluster intercept (gaussian: in noise sd units)
+        intercept, icc = clustered
+        eta = eta + (intercept * noise_sd if analysis.family == "gaussian" else intercept)
     if analysis.family != "gaussian":  # keep exp() finite however large an --effect is asked
         eta = np.clip(eta, -_LOG_SCALE_LIMIT, _LOG_SCALE_LIMIT)
 
     if analysis.family == "gaussian":
-        y = middle + eta + rng.normal(0.0, noise_sd, rows)
+        y = middle + eta + rng.normal(0.0, noise_sd * np.sqrt(1.0 - icc), rows)
         if variable.kind == "count":
             y = np.round(y)
     elif analysis.family == "binomial":

@@ -43,7 +43,7 @@ from .problems import Exit, Problem, Stop
 
 # Sub-stream purposes: each (purpose, variable) pair has its own stream, so the values of one
 # variable do not shift when the dictionary gains another.
-VALUES, MISSING, OUTCOME, COEFFICIENTS, BLOCKS, EXCLUDED = range(6)
+VALUES, MISSING, OUTCOME, COEFFICIENTS, BLOCKS, EXCLUDED, CLUSTERS = range(7)
 
 _REDRAWS = 200  # rounds of redrawing for a truncated law before falling back
 EXCLUDED_SHARE = 0.02  # of the rows, per population condition
