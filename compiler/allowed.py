@@ -228,3 +228,27 @@ def analysis_problems(plan: Plan, analysis: Analysis, allowed: dict[str, Allowed
             f"{where} requires the row identifier {plan.data.row_id} to be missing ({said})",
             place=place, code="sample-empty"))
     return problems
+
+
+_NEGATION = {"at_least": "below", "below": "at_least", "above": "at_most", "at_most": "above",
+             "equals": "not_equals", "not_equals": "equals", "in": "not_in", "not_in": "in"}
+
+
+def negated(condition: Condition) -> Condition:
+    """The condition a row meets exactly when it fails ``condition`` (on a present value)."""
+    if condition.op == "is_missing":
+        return replace(condition, value=not condition.value)
+    return replace(condition, op=_NEGATION[condition.op])
+
+
+def failing(plan: Plan, condition: Condition, others: tuple[Condition, ...],
+            base: dict[str, Allowed]) -> dict[str, Allowed] | None:
+    """The allowed sets of rows that fail ``condition`` but meet ``others``, so that a
+    population's sample flow shows the condition excluding them; None when no value the
+    dictionary allows fails it (the condition then excludes nothing)."""
+    out = population_allowed(plan, Population("(excluded)", others), base, [])
+    variable = plan.variable(condition.variable)
+    narrowed = apply(variable, out[variable.name], negated(condition))
+    if narrowed.conflict or not (narrowed.missing or distinct_values(variable, narrowed)):
+        return None
+    return {**out, variable.name: narrowed}

@@ -22,6 +22,7 @@ import sys
 from pathlib import Path
 
 from .canonical import canonical_bytes, sha256_hex
+from .problems import Exit
 
 LOCK_STUB_FORMAT = "prespec-lock-stub/1"
 STUB_REASON = {"unlocked": "this run did not use a lock (--unlocked)",
@@ -56,9 +57,11 @@ def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key
 
 
 def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None,
-             effect=0.0, progress=True):
-    """A rehearsal on synthetic data, or on real data with one column scrambled."""
+             effects=(), progress=True):
+    """A rehearsal on synthetic data, or on real data with one column scrambled.
+    ``effects`` are the `--effect` specs (compiler/effects.py), for synthetic data only."""
     from . import seal
+    from .effects import read_effects
     from .renderer import Renderer
     from .pipeline import Stamp, analyse, compile_plan, data_path_for
     from .problems import Exit, Problem, Stop
@@ -69,20 +72,28 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
         raise Stop([Problem("rehearse --data needs --scramble VAR: a rehearsal on real, "
                             "unscrambled data would unblind the study", code="no-scramble")],
                    Exit.PLAN_INVALID)
+    if scramble is not None and effects:
+        raise Stop([Problem(
+            f"--effect {effects[0]}: an effect cannot be planted in scrambled real data: its "
+            "outcomes are the real ones, and scrambling the exposure sets every effect to none",
+            code="effect-scrambled",
+            hint="plant effects in synthetic data (leave out --data and --scramble)")],
+            Exit.PLAN_INVALID)
+    planted = read_effects(plan, effects)
     target = seal.target_folder(out, Path("out") / f"{plan.study.id}-rehearsal")
     seal.check_target(target)
     if scramble is not None:
         settings = {"source": "scrambled", "seed": seed, "rows": None, "effect": None,
-                    "scramble": scramble}
+                    "effects": [], "scramble": scramble}
         data_path = data_path_for(plan, data)
         note = f"{data_path.name} with {scramble} scrambled, seed {seed}"
     else:
         count = rows if rows is not None else (plan.data.expected_rows or DEFAULT_REHEARSAL_ROWS)
-        settings = {"source": "synthetic", "seed": seed, "rows": count, "effect": effect,
-                    "scramble": None}
+        settings = {"source": "synthetic", "seed": seed, "rows": count, "effect": None,
+                    "effects": [e.as_json() for e in planted], "scramble": None}
         data_path = None
         note = f"synthetic data, {count} rows, seed {seed}" + (
-            f", exposure effect {effect!r}" if effect else "")
+            ", planted effects " + ", ".join(e.describe() for e in planted) if planted else "")
     with Renderer.for_data(data_path) as renderer:
         _say(progress, f"rehearsing on {note}")
         stamp = Stamp(preregistered=False, rehearsal=True, note=note)
@@ -94,13 +105,14 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
 def rehearsal_table(plan, settings: dict, data_path):
     """The table a rehearsal runs on, made again from its settings (verify uses this too)."""
     from . import read
+    from .effects import from_json
     from .rehearse import scrambled_table, synthetic_table
 
     if settings["source"] == "scrambled":
         return scrambled_table(plan, read.read(plan, data_path), settings["scramble"],
                                settings["seed"])
     return synthetic_table(plan, rows=settings["rows"], seed=settings["seed"],
-                           effect=settings["effect"])
+                           effects=from_json(settings.get("effects") or ()))
 
 
 def results_document(analysed, stamp, *, plan_bytes: bytes, state, settings) -> dict:
@@ -177,8 +189,17 @@ def _finish(analysed, stamp, *, plan_bytes, state, target, key, settings,
              "environment": document["environment"]}
     _say(progress, f"sealing {target}")
     manifest = seal.seal(target, files, about, run_at=now_utc(), key=key)
-    return Report(lines=summary_lines(target, document, stamp),
+    return Report(exit_code=exit_code(document), lines=summary_lines(target, document, stamp),
                   payload=_payload(target, document, manifest))
+
+
+def exit_code(document: dict) -> Exit:
+    """0, or 6 for a rehearsal that shows the plan would not decide (a tier that cannot be
+    fitted, a rule left undetermined), so that CI stops before the plan is frozen. A run's
+    verdicts never change its exit code: a negative result is a result."""
+    if document["rehearsal"] and rehearsal_findings(document):
+        return Exit.WOULD_NOT_DECIDE
+    return Exit.OK
 
 
 def summary_lines(target, document: dict, stamp) -> list[str]:
@@ -188,7 +209,8 @@ def summary_lines(target, document: dict, stamp) -> list[str]:
     if stamp.rehearsal:
         to_fix = rehearsal_findings(document)
         if to_fix:
-            lines.append("rehearsal: fix before freezing:")
+            lines.append(f"rehearsal: the plan would not decide (exit {int(Exit.WOULD_NOT_DECIDE)}); "
+                         "fix before freezing:")
             lines += [f"  {item}" for item in to_fix]
         else:
             lines.append("rehearsal: every tier fitted, every rule evaluable")

@@ -71,7 +71,7 @@ def _cmd_rehearse(args) -> Report:
     from .bundle import rehearse
 
     return rehearse(args.plan, data=args.data, scramble=args.scramble, out=args.out,
-                    seed=args.seed, rows=args.rows, effect=args.effect,
+                    seed=args.seed, rows=args.rows, effects=args.effect or (),
                     progress=not args.json)
 
 
@@ -143,8 +143,10 @@ def build_parser() -> argparse.ArgumentParser:
                    help="the exposure column to permute (every analysis must have it)")
     p.add_argument("--seed", type=int, default=0, metavar="N", help="random seed (default 0)")
     p.add_argument("--rows", type=int, metavar="N", help="synthetic rows (default data.expected_rows or 500)")
-    p.add_argument("--effect", type=float, default=0.0, metavar="X",
-                   help="synthetic exposure effect on the analysis scale (default 0)")
+    p.add_argument("--effect", action="append", metavar="ID[:LEVEL]=X",
+                   help="plant an exposure effect in analysis ID (or one level of its "
+                        "exposure) on its natural scale: a difference, odds ratio or rate "
+                        "ratio; repeatable; default none")
     p.set_defaults(handler=_cmd_rehearse)
 
     p = sub.add_parser("verify", parents=[common], help="check a sealed bundle offline",

@@ -146,6 +146,10 @@ class Tier:
 class Covariance:
     kind: CovarianceKind = "classical"
     cluster: str | None = None  # the clustering variable when kind == "cluster"
+    # what a rehearsal's synthetic data assume of the clusters (None: synthesize's defaults)
+    icc: float | None = None
+    clusters: int | None = None
+    assigned: Literal["by-cluster", "within-cluster"] | None = None
 
     @property
     def label(self) -> str:

@@ -24,6 +24,9 @@ class Exit(IntEnum):
     DATA_CONTRACT = 3
     LOCK = 4
     NOT_INTACT = 5
+    # a rehearsal whose plan would not decide: a tier that cannot be fitted or a rule left
+    # undetermined on the rehearsal data (the bundle is still written: it is the evidence)
+    WOULD_NOT_DECIDE = 6
 
 
 @dataclass(frozen=True)

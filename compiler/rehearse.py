@@ -2,14 +2,15 @@
 
 `synthetic_table` draws every declared variable inside the plan's ranges, levels and population
 rules (see `synthesize`), then makes each analysis' outcome from the plan's own largest model,
-with the exposure effect set by the caller on the analysis scale:
+with the exposure effects the caller plants, each on its analysis' natural scale:
 
 - the linear predictor is built by the design pass itself on the generated columns, so the
   outcome follows exactly the columns the fit will use;
-- each exposure column gets ``effect`` (a difference for gaussian, a log odds ratio for
-  binomial, a log rate ratio for poisson; each non-reference level of a categorical exposure,
-  the slope per unit of a numeric one); terms that combine the exposure with something else
-  get 0, so the effect is the same at every covariate value;
+- each exposure column gets the effect planted for its analysis and level (`effects.py`:
+  given on the natural scale, a difference, an odds ratio or a rate ratio, entered as the
+  difference or the ratio's logarithm; each non-reference level of a categorical exposure,
+  the effect per unit of a numeric one), no effect when none is planted; terms that combine
+  the exposure with something else get 0, so the effect is the same at every covariate value;
 - every other column gets a modest coefficient of random sign (fixed by the seed) worth 0.2
   noise sd (gaussian), 0.2 on the log-odds scale (binomial) or 0.1 on the log-rate scale
   (poisson) per sd of the column;
@@ -31,8 +32,9 @@ from dataclasses import replace
 
 import numpy as np
 
-from . import synthesize
+from . import rehearse_clusters, synthesize
 from .allowed import Allowed
+from .effects import PlantedEffect, coefficients
 from .bound import BoundData, Sample, SampleFlow, Table
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop
@@ -47,21 +49,22 @@ _LOG_SCALE_LIMIT = 35.0
 
 
 def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
-                    effect: float = 0.0) -> Table:
+                    effects: tuple[PlantedEffect, ...] = ()) -> Table:
     """A data set made from the plan's dictionary alone; the same seed gives the same table.
 
     Raises Stop (exit 2) when the rows or seed are unusable or when a population rule leaves
     some analysis without a usable sample.
     """
     rows = (plan.data.expected_rows or DEFAULT_ROWS) if rows is None else rows
-    _check_arguments(rows=rows, seed=seed, effect=effect)
+    _check_arguments(rows=rows, seed=seed)
     plan_layout = synthesize.layout(plan, rows, seed)
     columns = synthesize.columns(plan, plan_layout, seed)
+    rehearse_clusters.apply(plan, plan_layout, columns, seed)
     made: set[str] = set()
     for analysis in plan.analyses:
         if analysis.outcome not in made:
             columns[analysis.outcome] = _outcome(plan, analysis, plan_layout, columns, seed,
-                                                 effect)
+                                                 coefficients(effects, analysis.id))
             made.add(analysis.outcome)
     synthesize.punch_missing(plan, plan_layout, columns, seed)
     body = table_csv(plan, columns)
@@ -70,8 +73,8 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
 
 
 def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table:
-    """The real table with the exposure column permuted over all rows by the seed; the rest
-    untouched. Only the exposure may be scrambled, and only when every analysis has it: any
+    """The real table with the exposure column permuted by the seed (over all rows, or by
+    cluster in a clustered plan: `rehearse_clusters.permutation`); the rest untouched. Only the exposure may be scrambled, and only when every analysis has it: any
     other column would leave the real exposure effects in the rehearsal's report.
 
     The permutation keeps the column's values, so the data contract sees the real values; the
@@ -99,7 +102,7 @@ def scrambled_table(plan: Plan, table: Table, variable: str, seed: int) -> Table
                  "a scrambled rehearsal blinds one exposure, and this plan has several "
                  f"({', '.join(exposures)}): rehearse on synthetic data (no --data)")],
             Exit.PLAN_INVALID)
-    order = np.random.default_rng(seed).permutation(table.rows_read)
+    order = rehearse_clusters.permutation(plan, table, variable, seed)
     columns = dict(table.columns)
     columns[variable] = table.columns[variable][order]
     changes: dict = {"columns": columns}
@@ -137,22 +140,20 @@ def table_csv(plan: Plan, columns: dict[str, np.ndarray]) -> bytes:
     return out.getvalue().encode("utf-8")
 
 
-def _check_arguments(*, seed: int, rows: int | None = None, effect: float = 0.0) -> None:
+def _check_arguments(*, seed: int, rows: int | None = None) -> None:
     problems = []
     if rows is not None and rows < 1:
         problems.append(Problem(f"--rows {rows}: a rehearsal needs at least one row",
                                 code="bad-rows"))
     if seed < 0:
         problems.append(Problem(f"--seed {seed}: the seed must be 0 or more", code="bad-seed"))
-    if not np.isfinite(effect):
-        problems.append(Problem(f"--effect {effect}: the effect must be a finite number",
-                                code="bad-effect"))
     if problems:
         raise Stop(problems, Exit.PLAN_INVALID)
 
 
 def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
-             columns: dict[str, np.ndarray], seed: int, effect: float) -> np.ndarray:
+             columns: dict[str, np.ndarray], seed: int,
+             effect: dict[str | None, float]) -> np.ndarray:
     from . import design
 
     rows = len(plan_layout.block)
@@ -163,7 +164,9 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
 
     complete = _complete_rows(analysis, columns, rows)
     built = design.design(plan, analysis, _bound_for(analysis, columns, complete))
-    exposure = set(built.exposure_columns)
+    levels = _exposure_levels(plan, analysis)
+    exposure = {j: effect.get(levels[i], effect.get(None, 0.0))
+                for i, j in enumerate(built.exposure_columns)}
     with_exposure = {t.label for t in analysis.tiers[-1].terms if analysis.exposure in t.variables}
     x = np.asarray(built.x)  # the whole matrix (a gaussian design builds its rows on demand)
     centred = x - x.mean(axis=0)
@@ -173,17 +176,22 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
     beta = np.zeros(x.shape[1])
     for j in range(1, x.shape[1]):
         if j in exposure:
-            beta[j] = effect
+            beta[j] = exposure[j]
         elif built.column_term[j] not in with_exposure and spread[j] > 0:
             beta[j] = signs[j] * _COVARIATE_SHARE[analysis.family] * noise_sd / spread[j]
     # Rows the design could not take (a variable a rule keeps missing) sit at the average.
     eta = np.zeros(rows)
     eta[complete] = centred @ beta
+    clustered = rehearse_clusters.intercepts(plan, analysis, columns, seed, _MEAN_COUNT)
+    icc = 0.0
+    if clustered is not None:  # a random cluster intercept (gaussian: in noise sd units)
+        intercept, icc = clustered
+        eta = eta + (intercept * noise_sd if analysis.family == "gaussian" else intercept)
     if analysis.family != "gaussian":  # keep exp() finite however large an --effect is asked
         eta = np.clip(eta, -_LOG_SCALE_LIMIT, _LOG_SCALE_LIMIT)
 
     if analysis.family == "gaussian":
-        y = middle + eta + rng.normal(0.0, noise_sd, rows)
+        y = middle + eta + rng.normal(0.0, noise_sd * np.sqrt(1.0 - icc), rows)
         if variable.kind == "count":
             y = np.round(y)
     elif analysis.family == "binomial":
@@ -202,6 +210,15 @@ def _outcome(plan: Plan, analysis: Analysis, plan_layout: synthesize.Layout,
         at = plan_layout.block == b
         y[at] = synthesize.conform(variable, rules, y[at], rng)
     return y
+
+
+def _exposure_levels(plan: Plan, analysis: Analysis) -> list[str | None]:
+    """The level each exposure column stands for (None for a numeric exposure's one column)."""
+    variable = plan.variable(analysis.exposure)
+    if variable.kind != "categorical":
+        return [None]
+    reference = variable.reference if variable.reference is not None else variable.levels[0]
+    return [level for level in variable.levels if level != reference]
 
 
 def _location(allowed: list[Allowed]) -> tuple[float, float]:

@@ -375,7 +375,14 @@ def covariance_of(ctx: Context, node: Node | None, where: str) -> Covariance:
         ctx.error(f"cluster variable `{cluster.name}` is continuous; clusters are named by an "
                   "identifier, categorical or count code", cluster_node.place,
                   hint="declare it `kind: identifier`", code="kind-mismatch")
-    return Covariance("cluster", cluster_node.value)
+    clusters = value(node, "clusters")
+    if cluster is not None and cluster.kind == "categorical" and clusters is not None \
+            and clusters > len(cluster.levels):
+        ctx.error(f"clusters: {clusters}, but the cluster variable `{cluster.name}` has "
+                  f"{len(cluster.levels)} levels", place_of(node, "clusters"),
+                  code="out-of-range")
+    return Covariance("cluster", cluster_node.value, value(node, "icc"), clusters,
+                      value(node, "assigned"))
 
 
 def _tiers(ctx: Context, node: Mapping, where: str, outcome, exposure) -> tuple[Tier, ...]:

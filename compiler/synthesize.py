@@ -19,6 +19,13 @@ meets all of them (nested populations, the common case, come out so). When they 
 population keeps age < 30 and another age ≥ 70), the rows are dealt out evenly among the
 populations, and each row meets the rules of its own: every population then holds rows.
 A population that no row can meet stops the rehearsal with the condition that empties it.
+
+Excluded rows. So that every population rule is tried, a few rows fail one condition each
+and meet every other (`allowed.failing`): 2 % of the rows per condition (at least one, and
+one for a condition on an identifier), never more than a quarter of the rows in all (the
+conditions in plan order take them until that share is spent). The sample flow then shows
+each condition excluding rows. A condition that no value inside the dictionary fails (age ≥ 16
+when the dictionary's min is 16) excludes nothing and gets no row.
 """
 
 from __future__ import annotations
@@ -30,15 +37,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from .allowed import (Allowed, analysis_problems, base_allowed, candidates,
-                      distinct_values, integer_bounds, population_allowed)
-from .plan import Plan, Population, Variable
+                      distinct_values, failing, integer_bounds, population_allowed)
+from .plan import Condition, Plan, Population, Variable
 from .problems import Exit, Problem, Stop
 
 # Sub-stream purposes: each (purpose, variable) pair has its own stream, so the values of one
 # variable do not shift when the dictionary gains another.
-VALUES, MISSING, OUTCOME, COEFFICIENTS, BLOCKS = range(5)
+VALUES, MISSING, OUTCOME, COEFFICIENTS, BLOCKS, EXCLUDED, CLUSTERS = range(7)
 
 _REDRAWS = 200  # rounds of redrawing for a truncated law before falling back
+EXCLUDED_SHARE = 0.02  # of the rows, per population condition
+EXCLUDED_LIMIT = 0.25  # of the rows, for all conditions together
 
 
 def stream(seed: int, purpose: int, name: str = "") -> np.random.Generator:
@@ -54,6 +63,7 @@ class Layout:
     allowed: tuple[dict[str, Allowed], ...]
     block: np.ndarray  # int per row
     protected: frozenset  # variables never given random missing values
+    failed: tuple[Condition | None, ...] = ()  # per block: the condition its rows fail
 
 
 def layout(plan: Plan, rows: int, seed: int) -> Layout:
@@ -87,11 +97,44 @@ def layout(plan: Plan, rows: int, seed: int) -> Layout:
         for a in plan.analyses:
             clashes += analysis_problems(plan, a, joint, None)
     if not clashes:
-        return Layout((joint,), np.zeros(rows, dtype=np.int64), frozenset(protected))
-    # The populations exclude one another: deal the rows out so each keeps its share.
-    blocks = np.resize(np.arange(len(used)), rows)
-    blocks = stream(seed, BLOCKS).permutation(blocks)
-    return Layout(tuple(own[p.name] for p in used), blocks, frozenset(protected))
+        kept = (joint,)
+        rules = [(c, _all_rules(used).conditions) for c in _distinct(_all_rules(used).conditions)]
+    else:  # the populations exclude one another: each keeps an even share of the rows
+        kept = tuple(own[p.name] for p in used)
+        rules = [(c, p.conditions) for p in used for c in _distinct(p.conditions)]
+    excluded = _excluded_blocks(plan, rules, base, rows)
+    blocks = np.empty(rows, dtype=np.int64)
+    at = stream(seed, EXCLUDED).permutation(rows)
+    start = 0
+    for b, (_, _, k) in enumerate(excluded):
+        blocks[at[start:start + k]] = len(kept) + b
+        start += k
+    blocks[np.sort(at[start:])] = stream(seed, BLOCKS).permutation(
+        np.resize(np.arange(len(kept)), rows - start))
+    return Layout(kept + tuple(a for _, a, _ in excluded), blocks, frozenset(protected),
+                  (None,) * len(kept) + tuple(c for c, _, _ in excluded))
+
+
+def _distinct(conditions: tuple[Condition, ...]) -> list[Condition]:
+    return list(dict.fromkeys(conditions))
+
+
+def _excluded_blocks(plan: Plan, rules, base, rows: int) -> list:
+    """(condition, allowed sets, rows) for each condition whose failing rows can be made."""
+    out, seen, left = [], set(), math.floor(rows * EXCLUDED_LIMIT)
+    for condition, conditions in rules:
+        if condition in seen:
+            continue
+        seen.add(condition)
+        allowed = failing(plan, condition, tuple(c for c in conditions if c != condition), base)
+        wanted = 1 if plan.variable(condition.variable).kind == "identifier" else max(
+            1, math.floor(rows * EXCLUDED_SHARE))
+        k = min(wanted, left)
+        if allowed is None or not k:
+            continue
+        out.append((condition, allowed, k))
+        left -= k
+    return out
 
 
 def _all_rules(populations: list[Population]) -> Population:
@@ -185,7 +228,11 @@ def identifiers(size: int, allowed: Allowed) -> np.ndarray:
 def conform(variable: Variable, allowed: Allowed, values: np.ndarray,
             rng: np.random.Generator) -> np.ndarray:
     """Bring generated outcome values inside the allowed set (clipped into the interval, or a
-    disallowed value replaced by an allowed one): needed only rarely, at the extremes."""
+    disallowed value replaced by an allowed one): needed only rarely, at the extremes; all
+    missing in rows that a rule wants missing."""
+    if allowed.missing:
+        return np.full(len(values), None if values.dtype == object else np.nan,
+                       dtype=values.dtype)
     if variable.kind in ("categorical", "identifier"):
         listed = candidates(variable, allowed)
         bad = ~np.isin(values, np.asarray(listed, dtype=object))
@@ -201,6 +248,9 @@ def conform(variable: Variable, allowed: Allowed, values: np.ndarray,
     low, high = allowed.low, allowed.high
     if variable.kind == "count":
         low, high = integer_bounds(allowed)
+    else:  # an open bound is not a value: clip to the nearest double inside it
+        low = np.nextafter(low, np.inf) if low is not None and allowed.low_open else low
+        high = np.nextafter(high, -np.inf) if high is not None and allowed.high_open else high
     return np.clip(values, -np.inf if low is None else low, np.inf if high is None else high)
 
 
@@ -222,6 +272,11 @@ def columns(plan: Plan, plan_layout: Layout, seed: int) -> dict[str, np.ndarray]
             present = kept[plan_layout.block]
             excluded = frozenset().union(*(a[v.name].excluded for a in plan_layout.allowed))
             values[present] = identifiers(int(present.sum()), Allowed(excluded=excluded))
+            for b, allowed in enumerate(plan_layout.allowed):  # rows failing a code rule
+                if allowed[v.name].values is not None and not allowed[v.name].missing:
+                    at = np.flatnonzero(plan_layout.block == b)
+                    values[at] = np.resize(np.asarray(allowed[v.name].values, dtype=object),
+                                           len(at))
         out[v.name] = values
     return out
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import importlib.util
 import json
+import math
 from pathlib import Path
 
 import pytest
@@ -42,8 +43,8 @@ def test_a_synthetic_rehearsal_exits_0_stamped_as_a_rehearsal(tmp_path, quick):
 
 def test_the_same_seed_gives_the_same_results_bytes(tmp_path, quick):
     first, again = tmp_path / "first", tmp_path / "again"
-    assert rehearse(str(DEMO), "--out", str(first), "--seed", "1", "--effect", "0.4") == 0
-    assert rehearse(str(DEMO), "--out", str(again), "--seed", "1", "--effect", "0.4") == 0
+    assert rehearse(str(DEMO), "--out", str(first), "--seed", "1", "--effect", "primary=0.4") == 0
+    assert rehearse(str(DEMO), "--out", str(again), "--seed", "1", "--effect", "primary=0.4") == 0
     assert (again / "results.json").read_bytes() == (first / "results.json").read_bytes()
 
 
@@ -97,4 +98,60 @@ def test_a_population_no_row_can_meet_exits_2_at_its_condition(tmp_path, capsys)
     err = capsys.readouterr().err
     assert code == 2
     assert f"{plan}:{line}:" in err and "age < 17" in err
+    assert not (tmp_path / "never").exists()
+
+
+# --- planted effects, per analysis and level, on the natural scale --------------------------
+
+def test_effects_are_planted_per_analysis_and_level_on_the_natural_scale(tmp_path, quick):
+    out = tmp_path / "planted"
+    assert rehearse(str(DEMO), "--out", str(out), "--seed", "4", "--rows", "2000",
+                    "--effect", "primary=-4", "--effect", "primary:coached=-12",
+                    "--effect", "awakenings=0.5") == 0
+    document = results(out)
+    assert document["rehearsal_settings"]["effects"] == [
+        {"analysis": "primary", "level": None, "scale": "difference", "value": -4.0},
+        {"analysis": "primary", "level": "coached", "scale": "difference", "value": -12.0},
+        {"analysis": "awakenings", "level": None, "scale": "rate ratio", "value": 0.5}]
+    exposure = {(a["id"], row["term"]): row for a in document["analyses"]
+                for row in a["exposure"] if row["tier"] == a["tiers"][-1]["name"]}
+    # each estimate lies within 4 standard errors of what was planted (on the model scale: a
+    # difference, or the ratio's logarithm; a miss has probability 6e-5 per estimate under the
+    # normal approximation); settled got no effect planted (odds ratio 1)
+    planted = {("primary", "guidance=leaflet"): -4.0, ("primary", "guidance=coached"): -12.0,
+               ("awakenings", "guidance=leaflet"): math.log(0.5),
+               ("awakenings", "guidance=coached"): math.log(0.5),
+               ("settled", "guidance=leaflet"): 0.0, ("settled", "guidance=coached"): 0.0}
+    for key, value in planted.items():
+        row = exposure[key]
+        assert abs(row["estimate"] - value) < 4 * row["std_error"], (key, row)
+    assert "planted effects primary difference -4.0" in document["rehearsal_note"]
+
+
+@pytest.mark.parametrize("spec, said", [
+    ("-3", "a bare value is ambiguous in a plan with 3 analyses"),
+    ("awakenings=-3", "analysis awakenings is poisson: its effect is a rate ratio, which must be above 0"),
+    ("primary:none=-3", "'none' is the reference level of guidance"),
+    ("primary:coachd=-3", "'coachd' is not a level of guidance"),
+    ("primry=-3", "no analysis is called 'primry'"),
+    ("primary=lots", "'lots' is not a finite number")])
+def test_an_effect_that_cannot_be_planted_exits_2_saying_why(tmp_path, capsys, spec, said):
+    code = rehearse(str(DEMO), "--out", str(tmp_path / "never"), "--effect", spec)
+    err = capsys.readouterr().err
+    assert code == 2 and f"--effect {spec}: {said}" in err, err
+    assert not (tmp_path / "never").exists()
+
+
+def test_a_bare_effect_is_refused_with_the_named_form_as_hint(tmp_path, capsys):
+    assert rehearse(str(DEMO), "--out", str(tmp_path / "never"), "--effect", "-3") == 2
+    assert "hint: name the analysis, on its natural scale: --effect primary=-3" in \
+        capsys.readouterr().err
+
+
+def test_an_effect_with_scramble_is_refused(tmp_path, capsys):
+    data = _demo_data(tmp_path)
+    code = rehearse(str(DEMO), "--data", str(data), "--scramble", "guidance",
+                    "--effect", "primary=-5", "--out", str(tmp_path / "never"))
+    err = capsys.readouterr().err
+    assert code == 2 and "cannot be planted in scrambled real data" in err
     assert not (tmp_path / "never").exists()

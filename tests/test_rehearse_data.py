@@ -15,6 +15,7 @@ import pytest
 from scipy import stats
 
 from compiler.plan import Analysis, Condition, Plan, Population, Term, Variable
+from compiler import synthesize
 from compiler.problems import Exit, Place, Stop
 from compiler.rehearse import synthetic_table, table_csv
 from rehearsekit import AT, VARIABLES, analysis, holds, make_plan, tiers
@@ -162,12 +163,63 @@ def test_a_log_term_keeps_its_variable_positive():
 
 # --- populations ----------------------------------------------------------------------------
 
-def test_every_row_meets_every_population_condition():
-    plan = make_plan()
+def _failed(plan: Plan, table) -> np.ndarray:
+    """Per row, how many of the plan's distinct population conditions it fails."""
+    conditions = list(dict.fromkeys(c for p in plan.populations for c in p.conditions))
+    return sum((~holds(c, table.columns[c.variable])).astype(int) for c in conditions)
+
+
+def test_rows_meet_every_population_condition_but_a_few_that_fail_exactly_one():
+    plan = make_plan()  # adults: age ≥ 18; compliant: age ≥ 18, visits ≥ 2
     table = synthetic_table(plan, seed=12, rows=800)
-    for population in plan.populations:
-        for condition in population.conditions:
-            assert holds(condition, table.columns[condition.variable]).all(), condition.describe()
+    failed = _failed(plan, table)
+    assert failed.max() == 1
+    assert np.sum(failed == 1) == 2 * math.floor(800 * 0.02)  # 2 % per condition
+
+
+TENURE = Variable("tenure", "count")  # no declared range: 0, 1, 2, … all allowed
+CLINIC = Variable("clinic", "categorical", levels=("east", "west", "lakeside"))
+AT_PLACES = [Place("plan.yaml", 50 + k, 9) for k in range(12)]
+# one condition of every kind, on variables the analysis does not otherwise use (a rule on a
+# covariate would fix it and alias its column)
+MANY = Population("many", tuple(Condition(*spec, AT_PLACES[k]) for k, spec in enumerate([
+    ("tenure", "at_least", 3.0), ("age", "above", 20.0), ("age", "below", 80.0),
+    ("score", "at_most", 95.0), ("cured", "in", (0.0,)), ("clinic", "equals", "east"),
+    ("visits", "not_equals", 1.0), ("visits", "not_in", (0.0, 7.0)),
+    ("weight", "is_missing", False), ("months", "is_missing", True),
+    ("pid", "not_in", ("R00004",))])))
+
+
+def test_every_population_condition_excludes_rows_in_the_sample_flow():
+    # The first defect: tenure ≥ 3 excluded 0 of 3,000 synthetic rows.
+    plan = make_plan(variables=VARIABLES + (TENURE, CLINIC), populations=(MANY,),
+                     analyses=[analysis("gaussian", "score", population="many")])
+    from compiler.pipeline import analyse
+
+    table = synthetic_table(plan, seed=3, rows=3000)
+    flow = analyse(plan, None, table=table).bound.sample("a-gaussian").flow
+    excluded = {step.reason: step.excluded for step in flow.by_condition}
+    assert len(excluded) == len(MANY.conditions)
+    for condition in MANY.conditions:
+        assert excluded[condition.describe()] >= 1, condition.describe()
+    assert excluded["tenure ≥ 3"] == math.floor(3000 * 0.02)
+    assert excluded["pid not in {R00004}"] == 1  # one row carries the excluded code
+    assert len(set(table.columns["pid"])) == 3000  # and the identifier stays unique
+    assert flow.rows_in_population >= 0.75 * 3000
+
+
+def test_a_condition_no_declared_value_fails_gets_no_excluded_rows():
+    redundant = Population("redundant", (Condition("age", "at_least", 16.0, AT),))  # min is 16
+    plan = make_plan(populations=(redundant,),
+                     analyses=[analysis("gaussian", "score", population="redundant")])
+    assert _failed(plan, synthetic_table(plan, seed=1, rows=500)).max() == 0
+
+
+def test_excluded_rows_never_take_more_than_a_quarter_of_the_rows():
+    plan = make_plan(variables=VARIABLES + (TENURE, CLINIC), populations=(MANY,),
+                     analyses=[analysis("gaussian", "score", population="many")])
+    failed = _failed(plan, synthetic_table(plan, seed=2, rows=20))
+    assert np.sum(failed > 0) == 5 and failed.max() == 1  # ⌊20 / 4⌋, one row per condition
 
 
 def test_level_rules_fix_the_generated_levels():
@@ -177,8 +229,10 @@ def test_level_rules_fix_the_generated_levels():
     plan = make_plan(populations=(narrow,),
                      analyses=[analysis("gaussian", "score", population="two-arms")])
     table = synthetic_table(plan, seed=13, rows=300)
-    assert set(table.columns["arm"]) == {"control", "high"}
-    assert set(table.columns["site"]) == {"north"}
+    kept = _failed(plan, table) == 0  # the rows inside the population
+    assert set(table.columns["arm"][kept]) == {"control", "high"}
+    assert set(table.columns["site"][kept]) == {"north"}
+    assert set(table.columns["arm"][~kept]) <= {"control", "low", "high"}
 
 
 def test_populations_that_exclude_one_another_each_keep_a_share_of_the_rows():
@@ -188,7 +242,10 @@ def test_populations_that_exclude_one_another_each_keep_a_share_of_the_rows():
                      analyses=[analysis("gaussian", "score", population="young"),
                                analysis("binomial", "cured", population="old")])
     age = synthetic_table(plan, seed=14, rows=400).columns["age"]
-    assert np.sum(age < 30) == 200 and np.sum(age >= 70) == 200
+    # 8 rows (2 %) fail each population's rule; the other 384 are dealt out evenly
+    assert np.sum(age < 30) >= 192 and np.sum(age >= 70) >= 192
+    layout = synthesize.layout(plan, 400, 14)
+    assert list(np.bincount(layout.block)) == [192, 192, 8, 8]
 
 
 def _stop(plan: Plan) -> Stop:

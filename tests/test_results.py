@@ -49,7 +49,9 @@ def test_a_run_document_validates_against_the_schema(analysed):
 
 def test_a_rehearsal_document_validates_and_says_so(analysed):
     stamp = Stamp(preregistered=False, rehearsal=True, note="synthetic data, 300 rows, seed 3")
-    settings = {"source": "synthetic", "seed": 3, "rows": 300, "effect": 0.0, "scramble": None}
+    settings = {"source": "synthetic", "seed": 3, "rows": 300, "effect": None, "scramble": None,
+                "effects": [{"analysis": "primary", "level": None, "scale": "difference",
+                             "value": -5.0}]}
     document = build(analysed, stamp, rehearsal_settings=settings)
     assert list(validator().iter_errors(document)) == []
     assert (document["rehearsal"], document["preregistered"]) == (True, False)
