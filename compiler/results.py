@@ -200,6 +200,9 @@ def _analysis(plan, analysis, bound, fit, summarise) -> dict:
     return {
         "id": analysis.id, "family": analysis.family, "link": LINKS[analysis.family],
         "outcome": analysis.outcome, "exposure_variable": analysis.exposure,
+        "outcome_label": plan.variable(analysis.outcome).label,
+        "outcome_unit": plan.variable(analysis.outcome).unit,
+        "exposure_label": plan.variable(analysis.exposure).label,
         "offset": analysis.offset,
         "population": analysis.population, "rows_in_population": int(flow.rows_in_population),
         "n": int(fit.n), "covariance": analysis.covariance.label,
@@ -222,7 +225,8 @@ def _verdict(v) -> dict:
     return {"id": v.id, "analysis": v.analysis, "test": v.test, "tier": v.tier,
             "verdict": v.verdict, "reason": v.reason, "covariance": v.covariance,
             "branch": v.branch, "multiplicity": v.multiplicity,
-            "numbers": json_ready(dict(v.numbers))}
+            "numbers": json_ready(dict(v.numbers)),
+            "inference": json_ready(v.inference), "cautions": list(v.cautions)}
 
 
 def _assumption(o) -> dict:
