@@ -86,10 +86,9 @@ def _decided(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
     term = exposure_term(plan, decision)
     covariance = numbers.get("covariance") or branch.covariance or analysis.covariance.label
     own = analysis.covariance.label
-    covariance_why = (branch.text if branch.text else
-                      f"{own}, the analysis' own covariance")
+    covariance_why = branch.text or "the analysis' own covariance"
     if covariance == own and branch.text:
-        covariance_why = f"{own}, the analysis' own covariance, kept: {branch.text}"
+        covariance_why = f"the analysis' own covariance, kept: {branch.text}"
     level = numbers.get("ci_level")
     formula, why = basis
     out = {"term": term, "tier": decision.tier, "covariance": covariance,
@@ -126,7 +125,7 @@ def _effect_tail(plan: Plan, decision: Decision, finding: Finding, fit: Analysis
         return "" if inference is None else levels_summary(analysis, inference, alpha)
     if numbers.get("ci_level") is None or numbers.get("estimate") is None:
         return ""
-    return f" ({effect_summary(analysis, term, numbers)})"
+    return f"; {effect_summary(analysis, term, numbers)}"
 
 
 # ---- assumption checks ------------------------------------------------------------------

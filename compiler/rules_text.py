@@ -208,8 +208,8 @@ def alpha_origin(plan: Plan, decision: Decision, alpha: float, step: int | None,
     if family.method == "bonferroni":
         return f"α = {whole}/{m} = {fmt_alpha(alpha)}, Bonferroni over {m}"
     divisor = m - (step or 1) + 1
-    return (f"α = {whole}/{divisor} = {fmt_alpha(alpha)} at {METHOD_NAME[family.method]} "
-            f"step {step} of {m}")
+    share = whole if divisor == 1 else f"{whole}/{divisor} = {fmt_alpha(alpha)}"
+    return f"α = {share} at {METHOD_NAME[family.method]} step {step} of {m}"
 
 
 def one_sided_caution(plan: Plan, decision: Decision) -> str | None:
