@@ -35,8 +35,11 @@ class _Parser(argparse.ArgumentParser):
 def _cmd_check(args) -> Report:
     from .pipeline import compile_plan
 
+    from .resolve_rules import plan_cautions
+
     plan = compile_plan(args.plan)
-    report = Report(payload={"plan": args.plan, "study": plan.study.id})
+    report = Report(payload={"plan": args.plan, "study": plan.study.id},
+                    problems=plan_cautions(plan))
     if args.explain:
         from .explain import explain, explain_json
 

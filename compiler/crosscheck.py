@@ -220,7 +220,7 @@ def _headers(folder: Path, plan, results: dict) -> list[Problem]:
     stored = {a["id"]: a for a in results["analyses"]}
     for analysis in plan.analyses:
         if analysis.id in stored:
-            header = analysis_header(analysis)
+            header = analysis_header(plan, analysis)
             changed += differences({k: stored[analysis.id].get(k) for k in header}, header,
                                    path=f"analyses[{analysis.id}]")
     if not changed:

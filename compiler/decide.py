@@ -16,11 +16,11 @@ from dataclasses import dataclass, replace
 from .fitted import AnalysisFit, ExposureInference
 from .multiplicity import Adjusted, adjust
 from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
-from .rules import Finding, base_numbers, change_in_estimate, equivalence, non_inferiority
-from .rules import superiority, tier_selection
+from .rules import Finding, base_numbers, change_in_estimate, effect_summary, equivalence
+from .rules import levels_summary, non_inferiority, superiority, tier_selection
 from .inference import finite_or_none
-from .rules_text import METHOD_NAME, exposure_term, fmt_alpha, fmt_num
-from .rules_text import fmt_p_phrase
+from .rules_text import METHOD_NAME, RATIO, alpha_origin, exposure_term, fmt_alpha, fmt_num
+from .rules_text import fmt_p_phrase, level_basis, one_sided_caution
 from .verdicts import AssumptionOutcome, Verdict
 
 INFERENCE_RULES = {"superiority": superiority, "non-inferiority": non_inferiority,
@@ -54,15 +54,78 @@ def decide(plan: Plan, fits: tuple[AnalysisFit, ...]
     verdicts = []
     for d in plan.decisions:
         finding, branch = first[d.id]
+        fit = fit_of[d.analysis]
         if d.id in steps:
             family, step, adjusted = steps[d.id]
             held = step.alpha_used if step.alpha_used is not None else family.alpha
             if held != alpha_of[d.id]:  # intervals at the level the decision was held to
-                finding, branch = _evaluate(plan, d, fit_of[d.analysis], held)
-            verdicts.append(_family_verdict(plan, d, finding, branch, family, step, adjusted))
+                finding, branch = _evaluate(plan, d, fit, held)
+            origin = alpha_origin(plan, d, held, step.rank, step.tested)
+            decided = _decided(plan, d, finding, branch, fit, held, origin)
+            tail = _effect_tail(plan, d, finding, fit, branch, held)
+            verdicts.append(_family_verdict(plan, d, finding, branch, family, step, adjusted,
+                                            decided, tail))
         else:
-            verdicts.append(_verdict(plan, d, finding, branch))
+            origin = alpha_origin(plan, d, alpha_of[d.id], None)
+            decided = _decided(plan, d, finding, branch, fit, alpha_of[d.id], origin)
+            verdicts.append(_verdict(plan, d, finding, branch, inference=decided))
     return tuple(verdicts), outcomes
+
+
+# ---- the inference that decided ---------------------------------------------------------
+
+def _decided(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
+             fit: AnalysisFit, alpha: float, origin: str) -> dict | None:
+    """The covariance, level and interval a rule on an estimate decided on, each with why;
+    None for rules that read no interval (tier selection, change in estimate)."""
+    basis = level_basis(decision)
+    if basis is None:
+        return None
+    analysis = plan.analysis(decision.analysis)
+    numbers = finding.numbers
+    term = exposure_term(plan, decision)
+    covariance = numbers.get("covariance") or branch.covariance or analysis.covariance.label
+    own = analysis.covariance.label
+    covariance_why = branch.text or "the analysis' own covariance"
+    if covariance == own and branch.text:
+        covariance_why = f"the analysis' own covariance, kept: {branch.text}"
+    level = numbers.get("ci_level")
+    formula, why = basis
+    out = {"term": term, "tier": decision.tier, "covariance": covariance,
+           "covariance_why": covariance_why, "estimate": numbers.get("estimate"),
+           "std_error": numbers.get("std_error"), "df": numbers.get("df"),
+           "level": level, "level_why": f"{formula} with {origin}: {why}",
+           "low": numbers.get("ci_low"), "high": numbers.get("ci_high"),
+           "natural": None, "reason": None}
+    if term is None:
+        out.update(level=None, reason=(f"a joint test of the levels of {analysis.exposure} "
+                                       "has no single estimate or interval"))
+        out["level_why"] = None
+        return out
+    ratio = analysis.family != "gaussian"
+    keys = ("ratio", "ratio_ci_low", "ratio_ci_high") if ratio else ("estimate", "ci_low",
+                                                                       "ci_high")
+    out["natural"] = {"scale": RATIO[analysis.family] if ratio else "difference",
+                      **{name: numbers.get(key)
+                         for name, key in zip(("estimate", "low", "high"), keys)}}
+    if out["low"] is None or out["high"] is None:
+        out["reason"] = finding.reason if finding.verdict == "undetermined" else (
+            "the interval could not be computed")
+    return out
+
+
+def _effect_tail(plan: Plan, decision: Decision, finding: Finding, fit: AnalysisFit,
+                 branch: _Branch, alpha: float) -> str:
+    """The estimate and interval a family member's verdict line carries."""
+    analysis = plan.analysis(decision.analysis)
+    term = exposure_term(plan, decision)
+    numbers = finding.numbers
+    if term is None:
+        inference = _inference(fit, decision.tier, branch.covariance)
+        return "" if inference is None else levels_summary(analysis, inference, alpha)
+    if numbers.get("ci_level") is None or numbers.get("estimate") is None:
+        return ""
+    return f"; {effect_summary(analysis, term, numbers)}"
 
 
 # ---- assumption checks ------------------------------------------------------------------
@@ -214,6 +277,7 @@ def _evaluate(plan: Plan, decision: Decision, fit: AnalysisFit, alpha: float
 
 def _verdict(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
              **extra) -> Verdict:
+    caution = one_sided_caution(plan, decision)
     numbers = {k: (finite_or_none(v) if isinstance(v, float) else v)
                for k, v in sorted(finding.numbers.items())}
     # rules that read no standard error (tier selection, change in estimate) name the
@@ -221,12 +285,13 @@ def _verdict(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
     covariance = numbers.get("covariance") or plan.analysis(decision.analysis).covariance.label
     return Verdict(id=decision.id, analysis=decision.analysis, test=decision.test,
                    tier=decision.tier, verdict=finding.verdict, reason=finding.reason,
-                   covariance=covariance, branch=branch.text, numbers=numbers, **extra)
+                   covariance=covariance, branch=branch.text, numbers=numbers,
+                   cautions=(caution,) if caution else (), **extra)
 
 
 def _family_verdict(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
-                    family: Multiplicity, step: Adjusted,
-                    adjusted: tuple[Adjusted, ...]) -> Verdict:
+                    family: Multiplicity, step: Adjusted, adjusted: tuple[Adjusted, ...],
+                    decided: dict | None, tail: str = "") -> Verdict:
     method = METHOD_NAME[family.method]
     label = (f"{family.method} over {', '.join(family.decisions)} at α = "
              f"{fmt_alpha(family.alpha)}")
@@ -239,12 +304,12 @@ def _family_verdict(plan: Plan, decision: Decision, finding: Finding, branch: _B
     if finding.verdict == "undetermined":
         reason = f"{finding.reason} (counted as not rejected in the {method} family)"
         return _verdict(plan, decision, replace(finding, reason=reason, numbers=numbers),
-                        branch, multiplicity=label)
+                        branch, multiplicity=label, inference=decided)
     word = "supported" if step.rejected else "not supported"
-    reason = _family_reason(decision, finding, family, step, adjusted) + note
+    reason = _family_reason(decision, finding, family, step, adjusted) + tail + note
     return _verdict(plan, decision,
                     replace(finding, verdict=word, reason=reason, numbers=numbers),
-                    branch, multiplicity=label)
+                    branch, multiplicity=label, inference=decided)
 
 
 def _family_reason(decision: Decision, finding: Finding, family: Multiplicity, step: Adjusted,
@@ -253,8 +318,11 @@ def _family_reason(decision: Decision, finding: Finding, family: Multiplicity, s
     own = fmt_p_phrase(finding.p_name, finding.p_value)
     if not step.tested:
         stopper = family.decisions[step.stopped_by]
+        stopped = adjusted[step.stopped_by]
+        their = (fmt_p_phrase("p", stopped.p_value) if stopped.p_value is not None
+                 else "its p could not be computed")
         return (f"not tested: the fixed sequence stopped at {stopper}, which was not rejected "
-                f"({own})")
+                f"({their}); its own {own}")
     verdict_tail = (f"{fmt_p_phrase('adjusted p', step.adjusted_p)} "
                     f"{'<' if step.rejected else '≥'} {alpha}")
     held = fmt_alpha(step.alpha_used)

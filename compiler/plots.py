@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import io
 import re
+import textwrap
 from dataclasses import dataclass
 
 import numpy as np
@@ -145,15 +146,20 @@ class ResidualSample:
                    np.asarray(residuals, dtype=float)[keep], ordered[keep], q1, q3)
 
 
-def residuals_vs_fitted(sample: ResidualSample, *, key: str, residual_label: str) -> str:
+# The residual plots side by side share one frame, with room below for a two-line title.
+_PAIR_AXES = (0.2, 0.25, 0.75, 0.70)
+
+
+def residuals_vs_fitted(sample: ResidualSample, *, key: str, residual_label: str,
+                        fitted_label: str = "fitted value") -> str:
     from matplotlib.figure import Figure
 
     with _settings(key):
         fig = Figure(figsize=(2.9, 2.4))
-        ax = fig.add_axes((0.2, 0.18, 0.75, 0.76))
+        ax = fig.add_axes(_PAIR_AXES)
         ax.axhline(0.0, color=_GREY, linewidth=0.6, linestyle=(0, (3, 2)))
         _points(ax, sample.fitted, sample.residuals)
-        ax.set_xlabel("fitted value")
+        ax.set_xlabel(textwrap.fill(fitted_label, 42))  # a declared label may be long
         ax.set_ylabel(residual_label)
         _plain_axes(ax)
         return _to_svg(fig, key)
@@ -174,7 +180,7 @@ def normal_quantiles(sample: ResidualSample, *, key: str, residual_label: str) -
     theoretical = np.array([quantile((i + 1 - 0.375) / (n + 0.25)) for i in thin(n)])
     with _settings(key):
         fig = Figure(figsize=(2.9, 2.4))
-        ax = fig.add_axes((0.2, 0.18, 0.75, 0.76))
+        ax = fig.add_axes(_PAIR_AXES)
         if sample.q1 is not None and sample.q3 is not None:
             t1, t3 = quantile(0.25), quantile(0.75)
             slope = (sample.q3 - sample.q1) / (t3 - t1)

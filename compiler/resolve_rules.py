@@ -12,7 +12,7 @@ from dataclasses import replace
 
 from .load import Mapping, Sequence
 from .plan import Analysis, Assumption, Decision, Multiplicity
-from .problems import Place
+from .problems import Place, Problem
 from .resolve import Context, article, covariance_of, first_at, level_text, place_of, value
 from .suggest import did_you_mean
 
@@ -155,7 +155,15 @@ def _level(ctx: Context, node: Mapping, analysis: Analysis, test: str, direction
 
 def _non_inferiority(ctx: Context, node: Mapping, analysis: Analysis, direction: str,
                      decision_id: str) -> float | None:
-    if direction == "two-sided":
+    if direction == "two-sided" and node.get("direction") is not None:
+        ctx.error(f"non-inferiority `{decision_id}` cannot be two-sided: it asks whether the "
+                  "effect is no worse than the margin on the one side that matters, so it is "
+                  "one-sided by nature; a two-sided question about a margin is an equivalence "
+                  "rule", place_of(node, "direction"),
+                  hint="say `direction: higher` (larger values are better) or `direction: "
+                       "lower` (smaller values are better), or use `test: equivalence` with "
+                       "`margins: [low, high]`", code="two-sided-non-inferiority")
+    elif direction == "two-sided":
         ctx.error(f"non-inferiority `{decision_id}` needs `direction`: higher (larger values are "
                   "better) or lower (smaller values are better)", place_of(node, "direction"),
                   code="missing-direction")
@@ -180,6 +188,22 @@ def _non_inferiority(ctx: Context, node: Mapping, analysis: Analysis, direction:
                   f"{scale} scale must be above {null:g}, not {margin_node.text}",
                   margin_node.place, code="margin-sign")
     return margin
+
+
+def plan_cautions(plan) -> tuple[Problem, ...]:
+    """Warnings on a resolved plan that change nothing it means: a one-sided rule held to
+    an α above 0.025 (rules_text.one_sided_caution). `check` prints them; exit stays 0."""
+    from .rules_text import ONE_SIDED_ALPHA, one_sided_caution
+
+    found = []
+    for decision in plan.decisions:
+        text = one_sided_caution(plan, decision)
+        if text:
+            found.append(Problem(text, decision.place, severity="warning",
+                                 code="one-sided-alpha",
+                                 hint=f"hold the rule at alpha {ONE_SIDED_ALPHA} (a frozen plan "
+                                      "keeps its own α: prespec changes no default)"))
+    return tuple(found)
 
 
 def _equivalence(ctx: Context, node: Mapping, analysis: Analysis,

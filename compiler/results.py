@@ -199,10 +199,13 @@ def plan_header(plan, plan_file_sha256: str) -> dict:
             "language": plan.language}
 
 
-def analysis_header(analysis) -> dict:
+def analysis_header(plan, analysis) -> dict:
     """The fields of an analysis' results that follow from the plan alone."""
+    outcome, exposure = plan.variable(analysis.outcome), plan.variable(analysis.exposure)
     return {"id": analysis.id, "family": analysis.family, "link": LINKS[analysis.family],
             "outcome": analysis.outcome, "exposure_variable": analysis.exposure,
+            "outcome_label": outcome.label, "outcome_unit": outcome.unit,
+            "exposure_label": exposure.label,
             "offset": analysis.offset, "population": analysis.population,
             "covariance": analysis.covariance.label, "confidence": number(analysis.confidence),
             "report_tier": analysis.report_tier}
@@ -212,7 +215,7 @@ def _analysis(plan, analysis, bound, fit, summarise) -> dict:
     sample = bound.sample(analysis.id)
     flow = sample.flow
     return {
-        **analysis_header(analysis), "rows_in_population": int(flow.rows_in_population),
+        **analysis_header(plan, analysis), "rows_in_population": int(flow.rows_in_population),
         "flow": {"rows_read": int(flow.rows_read),
                  "by_condition": [_step(s) for s in flow.by_condition],
                  "rows_in_population": int(flow.rows_in_population),
@@ -243,7 +246,8 @@ def _verdict(v) -> dict:
     return {"id": v.id, "analysis": v.analysis, "test": v.test, "tier": v.tier,
             "verdict": v.verdict, "reason": v.reason, "covariance": v.covariance,
             "branch": v.branch, "multiplicity": v.multiplicity,
-            "numbers": json_ready(dict(v.numbers))}
+            "numbers": json_ready(dict(v.numbers)),
+            "inference": json_ready(v.inference), "cautions": list(v.cautions)}
 
 
 def _assumption(o) -> dict:

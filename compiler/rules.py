@@ -80,13 +80,21 @@ def _undetermined(reason: str, numbers: dict) -> Finding:
     return Finding("undetermined", reason, numbers)
 
 
-def _effect_summary(analysis: Analysis, term: str, numbers: dict) -> str:
+def effect_summary(analysis: Analysis, term: str, numbers: dict) -> str:
+    """The estimate and its interval on the natural scale (a difference, an odds or rate
+    ratio), naming the covariance when it is not the analysis' own: what every verdict
+    line on an estimate carries."""
     level = level_percent(numbers["ci_level"])
     if analysis.family == "gaussian":
-        return (f"difference {term} {fmt_num(numbers['estimate'])}, {level} CI "
+        text = (f"difference {term} {fmt_num(numbers['estimate'])}, {level} CI "
                 f"{fmt_num(numbers['ci_low'])} to {fmt_num(numbers['ci_high'])}")
-    return (f"{RATIO[analysis.family]} {term} {fmt_num(numbers['ratio'])}, {level} CI "
-            f"{fmt_num(numbers['ratio_ci_low'])} to {fmt_num(numbers['ratio_ci_high'])}")
+    else:
+        text = (f"{RATIO[analysis.family]} {term} {fmt_num(numbers['ratio'])}, {level} CI "
+                f"{fmt_num(numbers['ratio_ci_low'])} to {fmt_num(numbers['ratio_ci_high'])}")
+    covariance = numbers.get("covariance")
+    if covariance and covariance != analysis.covariance.label:
+        text += f", {covariance} covariance"
+    return text
 
 
 def _coefficient(inference: ExposureInference, term: str, numbers: dict
@@ -146,7 +154,7 @@ def superiority(analysis: Analysis, decision: Decision, inference: ExposureInfer
         return _undetermined(f"the {name} for {term} could not be computed", numbers)
     below = p < alpha
     reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
-              f"{fmt_alpha(alpha)} ({_effect_summary(analysis, term, numbers)})")
+              f"{fmt_alpha(alpha)} ({effect_summary(analysis, term, numbers)})")
     return Finding("supported" if below else "not supported", reason, numbers, p, name)
 
 
@@ -163,8 +171,23 @@ def _joint_superiority(analysis: Analysis, inference: ExposureInference, alpha: 
     name = f"joint {joint.test} test of {analysis.exposure} ({joint.df} df): p"
     below = p < alpha
     reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
-              f"{fmt_alpha(alpha)} under {inference.covariance} covariance")
+              f"{fmt_alpha(alpha)} under {inference.covariance} covariance"
+              f"{levels_summary(analysis, inference, alpha)}")
     return Finding("supported" if below else "not supported", reason, numbers, p, "joint p")
+
+
+def levels_summary(analysis: Analysis, inference: ExposureInference, alpha: float) -> str:
+    """Each level's estimate and 1 − α interval, for a joint test's verdict line."""
+    parts = []
+    for coef in inference.coefficients:
+        numbers = base_numbers(analysis)
+        numbers.update(estimate=finite_or_none(coef.estimate),
+                       std_error=finite_or_none(coef.std_error))
+        if numbers["estimate"] is None or numbers["std_error"] is None:
+            continue
+        _interval(numbers, analysis, 1 - alpha, inference.df)
+        parts.append(effect_summary(analysis, coef.term, numbers))
+    return f" ({'; '.join(parts)})" if parts else ""
 
 
 def _to_analysis_scale(analysis: Analysis, value: float) -> float:
@@ -205,7 +228,8 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
     reason = (f"the {end} end of the {level_percent(1 - 2 * alpha)} interval for the {what} "
               f"{term}, {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
               f"{word} the margin {fmt_num(decision.margin)} "
-              f"({fmt_p_phrase('non-inferiority p', p)}, α = {fmt_alpha(alpha)})")
+              f"({fmt_p_phrase('non-inferiority p', p)}, α = {fmt_alpha(alpha)}; "
+              f"{effect_summary(analysis, term, numbers)})")
     return Finding("supported" if cleared else "not supported", reason, numbers, p,
                    "non-inferiority p")
 
@@ -240,7 +264,8 @@ def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInfer
               f"{_bound_words(analysis, ci_low)} to {_bound_words(analysis, ci_high)}, "
               f"{'lies' if inside else 'does not lie'} inside the margins "
               f"{fmt_num(decision.margins[0])} to {fmt_num(decision.margins[1])} "
-              f"({fmt_p_phrase('TOST p', p)}, α = {fmt_alpha(alpha)})")
+              f"({fmt_p_phrase('TOST p', p)}, α = {fmt_alpha(alpha)}; "
+              f"{effect_summary(analysis, term, numbers)})")
     return Finding("supported" if inside else "not supported", reason, numbers, p, "TOST p")
 
 

@@ -170,6 +170,63 @@ def describe_rule(plan: Plan, decision: Decision) -> str:
             f"margins {fmt_num(low)} to {fmt_num(high)} (two one-sided tests), at {alpha}.")
 
 
+# ---- why an interval has its level, and the one-sided caution ---------------------------
+
+# Common confirmatory practice holds a one-sided test at half the conventional two-sided
+# level (ICH E9, section 5.5; from memory). A caution only: defaults never change, so a
+# frozen plan keeps its meaning.
+ONE_SIDED_ALPHA = 0.025
+
+
+def level_basis(decision: Decision) -> tuple[str, str] | None:
+    """Why the decision's interval has its level, in the rule's own terms, as (formula,
+    explanation): 1 − α for a two-sided test, 1 − 2α where an end is a one-sided test at α."""
+    if decision.test == "superiority" and decision.direction == "two-sided":
+        return "1 − α", "the two-sided test's own interval"
+    end = "lower" if decision.direction == "higher" else "upper"
+    if decision.test == "superiority":
+        return "1 − 2α", f"its {end} end is the one-sided test at α"
+    if decision.test == "non-inferiority":
+        return "1 − 2α", f"its {end} end, compared with the margin, is the one-sided test at α"
+    if decision.test == "equivalence":
+        return "1 − 2α", "each end is one of the two one-sided tests at α"
+    return None
+
+
+def alpha_origin(plan: Plan, decision: Decision, alpha: float, step: int | None,
+                 tested: bool = True) -> str:
+    """Where the α a decision was held to comes from: its own, or its family's step."""
+    family = family_of(plan, decision.id)
+    if family is None:
+        return f"α = {fmt_alpha(alpha)}, the rule's own"
+    m, whole = len(family.decisions), fmt_alpha(family.alpha)
+    if family.method == "fixed-sequence":
+        if not tested:
+            return (f"α = {whole}, the family's; not tested, since the fixed sequence stopped "
+                    f"before step {step}")
+        return f"α = {whole}, the full family α at step {step} of {m} of the fixed sequence"
+    if family.method == "bonferroni":
+        return f"α = {whole}/{m} = {fmt_alpha(alpha)}, Bonferroni over {m}"
+    divisor = m - (step or 1) + 1
+    share = whole if divisor == 1 else f"{whole}/{divisor} = {fmt_alpha(alpha)}"
+    return f"α = {share} at {METHOD_NAME[family.method]} step {step} of {m}"
+
+
+def one_sided_caution(plan: Plan, decision: Decision) -> str | None:
+    """The caution for a one-sided rule held to more than 0.025, or None."""
+    one_sided = (decision.test == "non-inferiority" or
+                 (decision.test == "superiority" and decision.direction != "two-sided"))
+    family = family_of(plan, decision.id)
+    alpha = family.alpha if family is not None else decision.alpha
+    if not one_sided or alpha <= ONE_SIDED_ALPHA:
+        return None
+    source = (f"the α of its {METHOD_NAME[family.method]} family" if family is not None
+              else "its α")
+    return (f"decision `{decision.id}` is a one-sided test at {source} = {fmt_alpha(alpha)}; "
+            f"common confirmatory practice holds a one-sided test at {ONE_SIDED_ALPHA}, half "
+            f"the two-sided level (ICH E9, section 5.5)")
+
+
 def describe_assumption(plan: Plan, assumption: Assumption) -> str:
     analysis = plan.analysis(assumption.analysis)
     uses = (f"decisions {', '.join(assumption.applies_to)} use "

@@ -27,6 +27,10 @@ class Verdict:
     branch: str | None = None  # which assumption fallback was taken, and why
     multiplicity: str | None = None  # e.g. "holm over H1, H2, H3 at α = 0.05"
     numbers: dict = field(default_factory=dict)
+    # rules on an estimate: the covariance, level and interval that decided, each with why
+    # (decide._decided); None for tier selection and change in estimate
+    inference: dict | None = None
+    cautions: tuple[str, ...] = ()  # e.g. a one-sided rule held to more than 0.025
 
 
 @dataclass(frozen=True)

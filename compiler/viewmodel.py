@@ -10,21 +10,17 @@ from __future__ import annotations
 from . import report_format as f
 from .report_format import Cell, Counter, Notes
 from .viewmodel_analysis import analysis_view, characteristics_view
+from .viewmodel_decisions import decision_view, summary_row
 
 CAUTION = ("This report supports, and does not replace, review by a qualified statistician "
            "under the regulations and guidance that apply to the study.")
-
-VERDICT_CLASS = {"supported": "v-yes", "not supported": "v-no", "undetermined": "v-open"}
-
-TEST_WORDS = {"superiority": "superiority", "non-inferiority": "non-inferiority",
-              "equivalence": "equivalence", "tier-selection": "tier selection",
-              "change-in-estimate": "change in estimate"}
 
 
 def build(results: dict, plots: dict, *, results_sha256: str) -> dict:
     counter = Counter()
     plan, data = results["plan"], results["data"]
     analyses = results["analyses"]
+    by_id = {a["id"]: a for a in analyses}
     return {
         "title": f"{plan['id']} {plan.get('version') or ''}".strip(),
         "study": {"id": plan["id"], "version": plan.get("version") or "unversioned",
@@ -38,8 +34,10 @@ def build(results: dict, plots: dict, *, results_sha256: str) -> dict:
         "flows": [flow_view(a) for a in analyses],
         "contract": contract_view(results),
         "characteristics": [characteristics_view(a, Notes(counter)) for a in analyses],
-        "analyses": [analysis_view(a, plots.get(a["id"]), Notes(counter)) for a in analyses],
-        "decisions": [decision_view(d, Notes(counter)) for d in results["decisions"]],
+        "analyses": [analysis_view(a, plots.get(a["id"]), Notes(counter),
+                                   decisions=results["decisions"]) for a in analyses],
+        "decisions": [decision_view(d, by_id.get(d["analysis"]), Notes(counter))
+                      for d in results["decisions"]],
         "assumptions": [assumption_view(a) for a in results["assumptions"]],
         "amendments": amendments_view(results),
         "environment": environment_view(results),
@@ -59,12 +57,6 @@ def stamp(results: dict) -> dict:
                 "note": note}
     return {"word": "NOT PRE-REGISTERED", "cls": "stamp-unlocked", "rehearsal": False,
             "note": "run without a matching lock"}
-
-
-def summary_row(d: dict) -> dict:
-    return {"id": d["id"], "analysis": d["analysis"], "test": TEST_WORDS.get(d["test"], d["test"]),
-            "tier": d["tier"], "verdict": d["verdict"], "cls": VERDICT_CLASS[d["verdict"]],
-            "reason": d["reason"]}
 
 
 def flow_view(a: dict) -> dict:
@@ -97,96 +89,6 @@ def contract_view(results: dict) -> dict:
     unused = ", ".join(data["unused_columns"]) or "none"
     facts.append(("columns not in the dictionary", unused))
     return {"findings": findings, "facts": facts}
-
-
-# Decision numbers that every rule shows, in this order; the rest only when present.
-CORE_NUMBERS = ("estimate", "ci", "statistic", "p_value", "adjusted_p", "alpha_used")
-NUMBER_LABELS = {
-    "estimate": "estimate", "std_error": "standard error", "statistic": "statistic",
-    "df": "degrees of freedom", "p_value": "p", "adjusted_p": "adjusted p",
-    "alpha_used": "α used", "margin": "margin", "margin_analysis_scale": "margin (analysis scale)",
-    "bound": "interval end compared", "ratio": "ratio", "threshold": "threshold",
-    "change": "change", "from_tier": "from tier", "estimate_from": "estimate in from tier",
-    "flagged": "flagged", "selected_tier": "selected tier", "report_tier": "report tier",
-    "agrees": "agrees with report tier", "p_lower_margin": "p against lower margin",
-    "p_upper_margin": "p against upper margin", "margins": "margins",
-}
-_SHOWN_ELSEWHERE = {"ci_low", "ci_high", "ci_level", "ratio_ci_low", "ratio_ci_high", "scale",
-                    "covariance", "comparisons"}
-
-
-def decision_view(d: dict, notes: Notes) -> dict:
-    numbers = d.get("numbers") or {}
-
-    def why(key: str) -> str:
-        if d["verdict"] == "undetermined":
-            return f"not computed: {d['reason']}"
-        if key == "adjusted_p" and not d.get("multiplicity"):
-            return "no multiplicity procedure covers this decision"
-        return f"does not apply to a {TEST_WORDS.get(d['test'], d['test'])} rule"
-
-    def value_cell(key: str) -> Cell:
-        value = numbers.get(key)
-        if key in ("p_value", "adjusted_p", "p_lower_margin", "p_upper_margin"):
-            return notes.cell(value, None if value is not None else why(key), f.p_value,
-                              default="")
-        if key in ("change", "threshold"):
-            return notes.cell(value, why(key), f.percent if key == "threshold" else f.change,
-                              default="")
-        if key in ("alpha_used", "family_alpha"):
-            return notes.cell(value, why(key), f.alpha, default="")
-        if key == "family_step" and isinstance(value, (int, float)):
-            return Cell(f.integer(int(value)))
-        if key in ("df", "df_denominator"):
-            return notes.cell(value, why(key), f.df, default="")
-        if isinstance(value, (bool, str)):
-            return Cell(f.num(value) if isinstance(value, bool) else value, numeric=False)
-        if isinstance(value, (list, tuple)) and len(value) == 2:
-            return Cell(f"{f.num(value[0])} to {f.num(value[1])}")
-        return notes.cell(value, why(key), default="")
-
-    rows = []
-    for key in CORE_NUMBERS:
-        if key == "ci":
-            rows.append((_ci_label(numbers), _interval(numbers, "ci_low", "ci_high", notes, why)))
-            continue
-        label = NUMBER_LABELS[key]
-        if key == "estimate" and numbers.get("scale"):
-            label = f"estimate ({numbers['scale']})"
-        rows.append((label, value_cell(key)))
-    if numbers.get("ratio") is not None:
-        rows.append(("ratio", value_cell("ratio")))
-        rows.append((f"ratio {_ci_label(numbers)}",
-                     _interval(numbers, "ratio_ci_low", "ratio_ci_high", notes, why)))
-    for key, value in numbers.items():
-        if key in CORE_NUMBERS or key in _SHOWN_ELSEWHERE or key == "ratio" or value is None:
-            continue
-        rows.append((NUMBER_LABELS.get(key, key.replace("_", " ")), value_cell(key)))
-    rows.append(("covariance", Cell(d.get("covariance") or "classical", numeric=False)))
-    walk = [{"step": f"{c['from']} → {c['to']}", "test": c.get("test") or "",
-             "p": notes.cell(c.get("p_value"), "the comparison has no p-value", f.p_value,
-                             default=""),
-             "needed": "—" if c.get("needed") is None else ("yes" if c["needed"] else "no")}
-            for c in numbers.get("comparisons") or []]
-    return {"id": d["id"], "analysis": d["analysis"], "tier": d["tier"],
-            "test": TEST_WORDS.get(d["test"], d["test"]), "verdict": d["verdict"],
-            "cls": VERDICT_CLASS[d["verdict"]], "reason": f.sentence(d["reason"]), "numbers": rows,
-            "walk": walk,
-            "branch": d.get("branch") or "none: no assumption fallback applies",
-            "multiplicity": d.get("multiplicity") or "none", "notes": notes.items}
-
-
-def _ci_label(numbers: dict) -> str:
-    level = numbers.get("ci_level")
-    return f"{f.level(level)} CI" if level is not None else "CI"
-
-
-def _interval(numbers: dict, low: str, high: str, notes: Notes, why) -> Cell:
-    lo, hi = numbers.get(low), numbers.get(high)
-    if lo is None or hi is None:
-        reason = why(low)
-        return Cell(f.DASH, notes.mark(reason), reason)
-    return Cell(f"{f.num(lo)} to {f.num(hi)}")
 
 
 def assumption_view(a: dict) -> dict:

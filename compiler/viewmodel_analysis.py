@@ -8,6 +8,7 @@ from markupsafe import Markup
 from . import plots as plotting
 from . import report_format as f
 from .report_format import Cell, Notes
+from .viewmodel_decisions import decided_rows
 
 RATIO_WORD = {"binomial": "odds ratio", "poisson": "rate ratio"}
 SCALE_WORD = {"gaussian": "difference", "binomial": "log odds ratio",
@@ -35,19 +36,42 @@ FIT_STATISTICS = (
 )
 
 
-# Why a fit statistic may be absent when the tier records no reason of its own.
-FIT_GAPS = {"iterations": "the fitting routine does not report an iteration count here"}
+
+def outcome_words(a: dict) -> str:
+    """The outcome as a reader knows it: its declared label and unit, else its column."""
+    label = a.get("outcome_label") or a["outcome"]
+    return f"{label} ({a['outcome_unit']})" if a.get("outcome_unit") else label
 
 
-def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes) -> dict:
+def exposure_words(a: dict) -> str:
+    return a.get("exposure_label") or a["exposure_variable"]
+
+
+def _named(label: str | None, column: str, unit: str | None = None) -> str:
+    """"Sleep-onset latency at week 8 (latency_w8, minutes)": label, column and unit."""
+    inside = ", ".join(x for x in (column, unit) if x)
+    return f"{label} ({inside})" if label else (f"{column} ({unit})" if unit else column)
+
+
+def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes,
+                  decisions: list[dict] = ()) -> dict:
     family = a["family"]
     stat = "t" if family == "gaussian" else "z"
     level = f.level(a["confidence"])
     ratio = family in RATIO_WORD
+    decided = decided_rows(a, list(decisions), notes)
     return {
         "id": a["id"],
         "anchor": f"analysis-{a['id']}",
-        "facts": _facts(a),
+        "heading": f"{outcome_words(a)} by {exposure_words(a)}",
+        "facts": _facts(a, decisions),
+        "decided": decided,
+        "decided_legend": _decided_legend(a) if decided else None,
+        "exposure_legend": (f"Change from first: (estimate − first-tier estimate) / "
+                            f"|first-tier estimate|, on the analysis scale. Intervals at "
+                            f"{level} under {a['covariance']} covariance, the analysis' own"
+                            + ("; the inference each decision used is in the table below."
+                               if decided else ".")),
         "statistic": stat,
         "level": level,
         "tiers": [_tier_view(a, t, notes) for t in a["tiers"]],
@@ -67,9 +91,29 @@ def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes)
     }
 
 
-def _facts(a: dict) -> list[tuple[str, str]]:
-    facts = [("model", FAMILY_WORDS[a["family"]]), ("outcome", a["outcome"]),
-             ("exposure", a["exposure_variable"]),
+def _decided_legend(a: dict) -> str:
+    return (f"Each decision's own inference: the covariance it used after its assumption "
+            f"checks and the interval at the level it was held to, on the natural scale. "
+            f"Where either differs from this page's {a['covariance']} covariance at "
+            f"{f.level(a['confidence'])}, the page's numbers follow on a second line.")
+
+
+def _covariance_fact(a: dict, decisions) -> str:
+    others: dict[str, list[str]] = {}
+    for d in decisions:
+        inference = d.get("inference")
+        if d["analysis"] == a["id"] and inference and inference["covariance"] != a["covariance"]:
+            others.setdefault(inference["covariance"], []).append(d["id"])
+    if not others:
+        return a["covariance"]
+    used = "; ".join(f"{', '.join(ids)} decided under {cov}" for cov, ids in others.items())
+    return f"{a['covariance']} in the tables of this page; {used} (see below)"
+
+
+def _facts(a: dict, decisions=()) -> list[tuple[str, str]]:
+    facts = [("model", FAMILY_WORDS[a["family"]]),
+             ("outcome", _named(a.get("outcome_label"), a["outcome"], a.get("outcome_unit"))),
+             ("exposure", _named(a.get("exposure_label"), a["exposure_variable"])),
              ("population", a["population"] or "all rows"),
              ("rows in population", f.integer(a["rows_in_population"])),
              ("rows analysed", f.integer(a["n"]))]
@@ -77,7 +121,8 @@ def _facts(a: dict) -> list[tuple[str, str]]:
         facts.append(("events (outcome = 1)", f.integer(a["events"])))
     if a.get("offset"):
         facts.append(("offset", f"log({a['offset']})"))
-    facts += [("covariance", a["covariance"]), ("confidence", f.level(a["confidence"])),
+    facts += [("covariance", _covariance_fact(a, decisions)),
+              ("confidence", f.level(a["confidence"])),
               ("report tier", a["report_tier"])]
     return facts
 
@@ -109,9 +154,10 @@ def _fit_table(a: dict, notes: Notes) -> dict:
     for key, label, families in FIT_STATISTICS:
         if family not in families:
             continue
+        if all(t.get(key) is None and not t.get("reason") for t in a["tiers"]):
+            continue  # nothing to show and no tier's own reason: the row does not apply
         fmt = f.integer if key in ("n_parameters", "df_resid", "iterations") else None
-        cells = [_cell(notes, t.get(key), t.get("reason") or FIT_GAPS.get(key), fmt)
-                 for t in a["tiers"]]
+        cells = [_cell(notes, t.get(key), t.get("reason"), fmt) for t in a["tiers"]]
         rows.append({"label": label, "cells": cells})
     if family != "gaussian":
         rows.append({"label": "converged",
@@ -155,8 +201,8 @@ def _forest(a: dict) -> Markup:
         label = f"{r['term'].split('=', 1)[-1]} · {r['tier']}" if several else r["tier"]
         rows.append(plotting.ForestRow(label, *(r[k] for k in keys),
                                        emphasis=r["tier"] == a["report_tier"]))
-    axis = RATIO_WORD[a["family"]] + " (log scale)" if ratio else (
-        f"difference in {a['outcome']}")
+    axis = (f"{RATIO_WORD[a['family']]}, {outcome_words(a)} (log scale)" if ratio else
+            f"difference in {outcome_words(a)}")
     return Markup(plotting.forest(rows, key=f"{a['id']}-exposure", ratio=ratio,
                                   axis_label=axis))
 
@@ -179,11 +225,7 @@ def _diagnostics(a: dict, sample: plotting.ResidualSample | None,
         "absent": None, "tier": d["tier"],
         "vif": [{"term": v["term"], "vif": _cell(notes, v["vif"], why),
                  "high": v["vif"] is not None and v["vif"] > 10} for v in d["vif"]],
-        "normality_test": d["normality"]["test"] or "normality test",
-        "normality_statistic": _cell(notes, d["normality"]["statistic"], why),
-        "normality_p": _cell(notes, d["normality"]["p_value"], why, f.p_value),
-        "bp_statistic": _cell(notes, d["breusch_pagan"]["statistic"], why),
-        "bp_p": _cell(notes, d["breusch_pagan"]["p_value"], why, f.p_value),
+        "tests": _diagnostic_tests(a, d, notes),
         "influential": [{"row_id": i["row_id"], "cooks": Cell(f.num(i["cooks_distance"]))}
                         for i in d["influential"]],
         "plots": None,
@@ -198,12 +240,33 @@ def _diagnostics(a: dict, sample: plotting.ResidualSample | None,
         key = f"{a['id']}-{d['tier']}"
         view["plots"] = {
             "fitted": Markup(plotting.residuals_vs_fitted(
-                sample, key=f"{key}-rvf", residual_label=residual_label)),
+                sample, key=f"{key}-rvf", residual_label=residual_label,
+                fitted_label=FITTED_WORDS[a["family"]].format(outcome_words(a)))),
             "quantiles": Markup(plotting.normal_quantiles(
                 sample, key=f"{key}-qq", residual_label=residual_label)),
             "caption": f"Tier {d['tier']}: {residual_label}s against fitted values (left) and "
                        f"against standard normal quantiles (right).{subset}"}
     return view
+
+
+FITTED_WORDS = {"gaussian": "fitted {}", "binomial": "fitted probability: {}",
+                "poisson": "fitted count: {}"}
+# (key, label, families): residual tests, printed only for the families they apply to
+DIAGNOSTIC_TESTS = (("normality", None, {"gaussian"}),
+                    ("breusch_pagan", "Breusch–Pagan", {"gaussian"}))
+
+
+def _diagnostic_tests(a: dict, d: dict, notes: Notes) -> list[dict]:
+    why = d.get("reason")
+    rows = []
+    for key, label, families in DIAGNOSTIC_TESTS:
+        test = d.get(key) or {}
+        if a["family"] not in families and test.get("statistic") is None:
+            continue
+        rows.append({"label": label or test.get("test") or "normality test",
+                     "statistic": _cell(notes, test.get("statistic"), why),
+                     "p": _cell(notes, test.get("p_value"), why, f.p_value)})
+    return rows
 
 
 # ---- characteristics -------------------------------------------------------------------

@@ -143,3 +143,45 @@ def test_the_executable_flushes_its_output_and_keeps_every_exit_code(tmp_path):
     assert (version.returncode, version.stdout.strip()) == (0, f"prespec {__version__}")
     usage = prespec("no-such-command")
     assert usage.returncode == 2 and "invalid choice" in usage.stderr
+
+
+# ---- one-sided rules above 0.025 (issue 21, point 4) ---------------------------------------
+# Common confirmatory practice holds a one-sided test at 0.025, half the two-sided level
+# (ICH E9, section 5.5; from memory). check warns; the exit code stays 0.
+
+ONE_SIDED = BROKEN.replace("      - name: adjusted\n        add: [agee]\n", "") + """\
+decisions:
+  - id: S1
+    analysis: main
+    test: superiority
+    direction: higher
+    alpha: ALPHA
+"""
+
+
+def _one_sided(tmp_path, alpha: str) -> str:
+    path = tmp_path / "one-sided.yaml"
+    path.write_text(ONE_SIDED.replace("ALPHA", alpha), encoding="utf-8")
+    return str(path)
+
+
+def test_a_one_sided_rule_above_0025_is_warned_in_the_gnu_form_and_exits_0(tmp_path, capsys):
+    plan = _one_sided(tmp_path, "0.05")
+    assert main(["check", plan]) == 0
+    out = capsys.readouterr().out
+    assert f"{plan}:15:5: warning: decision `S1` is a one-sided test at its α = 0.05" in out
+    assert "0.025" in out
+
+
+def test_the_one_sided_warning_is_in_the_json_document(tmp_path, capsys):
+    assert main(["check", "--json", _one_sided(tmp_path, "0.05")]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["exit_code"] == 0
+    (warning,) = doc["problems"]
+    assert (warning["severity"], warning["code"], warning["line"]) == (
+        "warning", "one-sided-alpha", 15)
+
+
+def test_a_one_sided_rule_at_0025_is_not_warned(tmp_path, capsys):
+    assert main(["check", _one_sided(tmp_path, "0.025")]) == 0
+    assert "warning" not in capsys.readouterr().out

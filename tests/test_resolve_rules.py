@@ -84,6 +84,15 @@ def test_non_inferiority_needs_a_direction(tmp_path):
          "(smaller values are better)", 29, 5)]
 
 
+def test_a_two_sided_non_inferiority_rule_is_told_why_two_sided_is_wrong(tmp_path):
+    text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, "
+                      "margin: -2, direction: two-sided}\n")
+    (message, line, col), = problems(tmp_path, text)
+    assert "cannot be two-sided" in message and "one-sided by nature" in message
+    assert "needs `direction`" not in message  # a direction was given
+    assert (line, col) == at(text, 29, "two-sided")
+
+
 def test_a_difference_margin_with_direction_higher_must_be_negative(tmp_path):
     text = with_rules("  - {id: N1, analysis: main, test: non-inferiority, level: high, "
                       "direction: higher, margin: 2}\n")

@@ -116,7 +116,7 @@ CASES = {
 def stored(plan, fit) -> dict:
     """The document's analyses as results.json holds them, read back from its bytes."""
     analysis = plan.analyses[0]
-    document = {"analyses": [{**results.analysis_header(analysis), **results.fit_parts(fit)}]}
+    document = {"analyses": [{**results.analysis_header(plan, analysis), **results.fit_parts(fit)}]}
     return json.loads(canonical_bytes(document))
 
 
