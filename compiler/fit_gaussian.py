@@ -151,15 +151,17 @@ def _compare(analysis, design, small: GaussianTier, big: GaussianTier, small_nam
     if df_added == 0:
         return Comparison(small_name, big_name, "F", 0, None, None, float(df_big),
                           "the larger tier adds no design columns")
+    if big.sigma2 is None:  # under any covariance: residuals of rounding size test nothing
+        return Comparison(small_name, big_name, "F" if covariance.kind == "classical" else
+                          "Wald", df_added, None, None, float(df_big),
+                          EXACT_FIT + f" in tier {big_name}")
     if covariance.kind != "classical":
         df = reference_df(covariance, "gaussian", df_big, clusters)
         cov = sandwich.get(covariance.label)
-        test = wald_test(big.beta, cov, range(small.width, big.width), df, "Wald")
+        test = wald_test(big.beta, cov, range(small.width, big.width), df, "Wald",
+                         covariance.kind)
         return Comparison(small_name, big_name, "Wald", df_added, test.statistic, test.p_value,
                           test.df_denominator, test.reason)
-    if big.sigma2 is None:
-        return Comparison(small_name, big_name, "F", df_added, None, None, float(df_big),
-                          EXACT_FIT + f" in tier {big_name}")
     f = ((small.rss - big.rss) / df_added) / big.sigma2
     f = max(f, 0.0)  # RSS can only fall as columns are added; a negative is rounding
     return Comparison(small_name, big_name, "F", df_added, finite_or_none(f),

@@ -223,7 +223,7 @@ def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit
                           "the larger tier adds no design columns")
     if test == "Wald":
         joint = wald_test(big.beta, sandwich.get(covariance.label),
-                          range(small.width, big.width), None, "Wald")
+                          range(small.width, big.width), None, "Wald", covariance.kind)
         return Comparison(small_fit.name, big_fit.name, "Wald", df_added, joint.statistic,
                           joint.p_value, None, joint.reason)
     if small.log_likelihood is None or big.log_likelihood is None:
