@@ -330,7 +330,8 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         failure = _glm_failure(analysis.family, fit, fit_glm)
         rinv = None if failure else triangular_inverse(fit.r_solution)
         numbers.append(GlmTier(fit.width, fit.params, None, None, rinv,
-                               finite_or_none(fit.log_likelihood), failure))
+                               None if failure else finite_or_none(fit.log_likelihood),
+                               failure, int(fit.iterations)))
         notes.append([failure] if failure else [])
     kinds = _robust_kinds(covariances)
     totals = [{} for _ in widths]
