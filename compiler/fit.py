@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 
-from .covariance import distinct_covariances
+from .covariance import distinct_covariances, reference_of
 from .fitted import AnalysisFit, Design, ExposureRow, TierFit
 from .inference import finite_or_none
 from .plan import Analysis, Plan
@@ -56,7 +56,8 @@ def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
         analysis=analysis.id, family=analysis.family, n=int(design.x.shape[0]),
         tiers=fitted.tiers, comparisons=fitted.comparisons,
         exposure=exposure_across_tiers(fitted.tiers, analysis.family != "gaussian"),
-        diagnostics=diagnostics, events=events, warnings=warnings)
+        diagnostics=diagnostics, events=events, warnings=warnings,
+        reference=reference_of(analysis.covariance, analysis.family, fitted.tiers))
 
 
 def exposure_across_tiers(tiers: tuple[TierFit, ...], ratio: bool) -> tuple[ExposureRow, ...]:

@@ -23,7 +23,8 @@ import numpy as np
 
 from . import diagnostics as memory_diagnostics
 from . import fit as memory_fit
-from .covariance import cluster_meat, cluster_sums, distinct_covariances, sandwich_covariances
+from .covariance import (cluster_meat, cluster_sums, distinct_covariances, reference_of,
+                         sandwich_covariances)
 from .fitted import AnalysisFit, Design, Diagnostics, Influential
 from .inference import finite_or_none
 from .irls import Moments, fit_tiers, moments_combine, moments_map
@@ -73,7 +74,8 @@ def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
         comparisons=comparisons,
         exposure=memory_fit.exposure_across_tiers(tiers, analysis.family != "gaussian"),
         diagnostics=diagnostics, events=events,
-        warnings=tuple(w for tier in tiers for w in tier.warnings))
+        warnings=tuple(w for tier in tiers for w in tier.warnings),
+        reference=reference_of(analysis.covariance, analysis.family, tiers))
 
 
 class Decomposition:
