@@ -118,3 +118,15 @@ def test_a_binomial_fit_with_an_extreme_covariate_is_mapped_back():
 
     for result in (fit(plan, analysis, d), fit_streamed(plan, analysis, passes)):
         _agree(result.tier("adjusted"), expected, [1.0, 1.0, 1e-160], digits=11)
+
+
+def test_the_characteristics_of_an_extreme_outcome_warn_nothing():
+    from compiler.characteristics import Moments
+
+    values = np.where(np.arange(N) % 2, 1e200, -1e200)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        moments = Moments.of(values.copy())
+    assert [str(w.message) for w in caught] == []
+    assert moments.mean == pytest.approx(float(np.mean(values)))  # numpy reference
+    assert moments.cell()["sd"] is None  # its square overflows: no SD, never inf
