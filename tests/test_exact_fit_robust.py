@@ -8,6 +8,8 @@ Wampler2: y = 1 + 0.1x + 0.01x² + 0.001x³ + 0.0001x⁴ + 0.00001x⁵; certifie
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 
@@ -30,8 +32,8 @@ def _fit(y, covariance):
     analysis = fk.analysis("y", "x", TIERS, covariance=covariance)
     plan = fk.plan(fk.numeric_variables("y", "x", "g"), [analysis])
     columns = {"y": y, "x": X, "g": X % 7}  # 7 clusters of 3 rows
-    plan = plan.__class__(**{**plan.__dict__, "decisions": (
-        Decision(id="T1", analysis="primary", test="tier-selection", tier="quintic"),)})
+    plan = replace(plan, decisions=(
+        Decision(id="T1", analysis="primary", test="tier-selection", tier="quintic"),))
     return plan, fit(plan, analysis, design(plan, analysis, fk.bound(columns, [analysis])))
 
 
