@@ -202,11 +202,14 @@ class Moments:
 
     @classmethod
     def of(cls, values: np.ndarray) -> "Moments":
-        """As numpy.mean and numpy.std compute them (pairwise sums; the same bits)."""
-        mean = np.mean(values)
-        deviations = values - mean
-        np.square(deviations, out=deviations)
-        return cls(len(values), float(mean), float(np.sum(deviations)))
+        """As numpy.mean and numpy.std compute them (pairwise sums; the same bits). Values
+        whose squares overflow (beyond 1e154) give an infinite m2, hence no SD, and no
+        warning on the terminal."""
+        with np.errstate(over="ignore", invalid="ignore"):
+            mean = np.mean(values)
+            deviations = values - mean
+            np.square(deviations, out=deviations)
+            return cls(len(values), float(mean), float(np.sum(deviations)))
 
     def merge(self, other: "Moments") -> "Moments":
         """The moments of both parts' values together, without another pass over them

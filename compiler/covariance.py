@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .fitted import Reference
 from .plan import Covariance
 from .qr import one_blas_thread, row_chunks
 
@@ -33,6 +34,37 @@ def reference_df(covariance: Covariance, family: str, df_resid: int,
     if covariance.kind == "cluster":
         return float(clusters - 1) if clusters else None
     return float(df_resid)
+
+
+def reference_of(covariance: Covariance, family: str, tiers) -> Reference:
+    """Which distribution the analysis covariance's t or z statistics are referred to, and
+    why (the words the results and the report carry)."""
+    if family != "gaussian":
+        basis = ("binomial and Poisson inference is large-sample: the dispersion is fixed at 1 "
+                 "and nothing is estimated from residual degrees of freedom, so there is no "
+                 "t reference with an exact basis")
+        if covariance.kind == "cluster":
+            basis += ("; with a clustered covariance the normal is the usual large-sample "
+                      "reference (statsmodels' for GLMs), and with few clusters its intervals "
+                      "are too narrow")
+        return Reference("z", None, "z (standard normal), every tier", basis)
+    if covariance.kind == "cluster":
+        df = tiers[0].exposure[0].df if tiers and tiers[0].exposure else None
+        shown = "clusters − 1" if df is None else f"clusters − 1 = {df:g}"
+        return Reference("t", df, f"t on {shown} df, every tier",
+                         "a clustered covariance is estimated from one score sum per cluster, "
+                         "so its precision grows with the clusters, not the rows: t on "
+                         "G − 1 degrees of freedom (Cameron & Miller 2015, J Human Resources "
+                         "50:317–372; statsmodels' use_t convention), where the normal would "
+                         "overstate it when clusters are few")
+    if covariance.kind == "classical":
+        return Reference("t", None, "t on each tier's residual df (n − p)",
+                         "the classical covariance with normal errors: t on the residual "
+                         "degrees of freedom is exact")
+    return Reference("t", None, "t on each tier's residual df (n − p)",
+                     "a heteroscedasticity-consistent covariance is large-sample; t on the "
+                     "residual degrees of freedom is the more cautious small-sample reference "
+                     "(statsmodels' use_t convention)")
 
 
 def sandwich_covariances(x: np.ndarray, rinv: np.ndarray, widths, residuals,

@@ -10,26 +10,48 @@ Both stop the run with exit 3, naming the analysis, the tier and the culprit.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 
-from .covariance import distinct_covariances
+from .covariance import distinct_covariances, reference_of
 from .fitted import AnalysisFit, Design, ExposureRow, TierFit
 from .inference import finite_or_none
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop
-from .qr import aliased_columns, augmented_r, rank_tolerance
+from . import equilibrate
+from .qr import aliased_columns, equilibrated_r, rank_tolerance
 
 _NAMED = 4  # columns named in an aliasing message
 
 
 def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
     """Fit every tier of ``analysis`` on ``design``; raises Stop (exit 3) when a tier cannot
-    be estimated at all (too few rows, a constant outcome, aliased columns)."""
-    _check_sizes(analysis, design)
-    r = augmented_r(design.x, design.y)  # for gaussian: the whole fit; for GLM: rank and VIF
-    _check_outcome(analysis, design, r)
-    _check_rank(plan, analysis, design, r)
+    be estimated at all (too few rows, a constant outcome, aliased columns). Columns of
+    extreme magnitude are equilibrated first (compiler/equilibrate.py), and no floating-point
+    warning leaves the numerics: what they flag becomes None with a reason."""
+    with np.errstate(all="ignore"):
+        _check_sizes(analysis, design)
+        # for gaussian: the whole fit; for GLM: rank and VIF
+        r, scales = equilibrated_r(design.x, design.y)
+        gaussian = analysis.family == "gaussian"
+        if equilibrate.needed(scales):
+            design = equilibrate.scaled(design, scales, gaussian)
+        _check_outcome(analysis, design, r, scales)
+        _check_rank(plan, analysis, design, r)
+        return mapped_back(_fit(plan, analysis, design, r), scales, gaussian)
+
+
+def mapped_back(result: AnalysisFit, scales: np.ndarray, gaussian: bool) -> AnalysisFit:
+    """A fit of the equilibrated design on the data's own scales; as it is when none was
+    needed."""
+    if not equilibrate.needed(scales):
+        return result
+    result = equilibrate.unscaled(result, scales, gaussian)
+    return replace(result, exposure=exposure_across_tiers(result.tiers, not gaussian))
+
+
+def _fit(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -> AnalysisFit:
     covariances = distinct_covariances(plan, analysis)
     report = list(design.tier_names).index(analysis.report_tier)
     events = None
@@ -56,7 +78,8 @@ def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
         analysis=analysis.id, family=analysis.family, n=int(design.x.shape[0]),
         tiers=fitted.tiers, comparisons=fitted.comparisons,
         exposure=exposure_across_tiers(fitted.tiers, analysis.family != "gaussian"),
-        diagnostics=diagnostics, events=events, warnings=warnings)
+        diagnostics=diagnostics, events=events, warnings=warnings,
+        reference=reference_of(analysis.covariance, analysis.family, fitted.tiers))
 
 
 def exposure_across_tiers(tiers: tuple[TierFit, ...], ratio: bool) -> tuple[ExposureRow, ...]:
@@ -104,7 +127,8 @@ def _check_sizes(analysis: Analysis, design: Design) -> None:
         raise Stop(problems, Exit.DATA_CONTRACT)
 
 
-def _check_outcome(analysis: Analysis, design: Design, r: np.ndarray) -> None:
+def _check_outcome(analysis: Analysis, design: Design, r: np.ndarray,
+                   scales: np.ndarray | None = None) -> None:
     """Stop (exit 3) when the outcome takes one value in every analysed row: no tier can be
     estimated, and what a fit would print is rounding noise (a gaussian "change in
     estimate" of 1e14 %, a GLM at the boundary of its parameter space). Read from R of
@@ -118,6 +142,8 @@ def _check_outcome(analysis: Analysis, design: Design, r: np.ndarray) -> None:
     if spread > rank_tolerance(n, p) * float(np.sqrt(np.sum(y_column ** 2))):
         return
     value = float(r[0, p] / r[0, 0]) + 0.0  # + 0.0: no "-0"
+    if scales is not None:  # the equilibrated outcome over the equilibrated intercept
+        value *= float(scales[p] / scales[0])
     raise Stop([Problem(
         f"analysis {analysis.id}: the outcome takes the one value {value:.6g} in all {n} "
         "analysed rows, so there is nothing to model in any tier", column=analysis.outcome,

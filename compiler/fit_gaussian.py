@@ -10,7 +10,7 @@ inverted (that would cost 3–4 digits on NIST Longley, see references.md).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
@@ -22,6 +22,7 @@ from .plan import Analysis, Covariance
 from .qr import augmented_r, back_substitute, rank_tolerance, triangular_inverse
 
 EXACT_FIT = "exact fit: zero residual variance"
+FEW_DIGITS = 6  # warn when σ² and the standard errors carry fewer correct digits than this
 
 
 @dataclass(frozen=True)
@@ -77,14 +78,31 @@ def fit_gaussian(analysis: Analysis, design: Design, r: np.ndarray,
                                               residuals, robust, design.cluster)
 
     tiers = []
+    rounding = rank_tolerance(n, p + 1) * math.sqrt(y_norm2)  # the QR's error in ‖e‖
     for k, (tier, t) in enumerate(zip(analysis.tiers, numbers)):
-        tiers.append(_tier_fit(analysis, design, tier, k, t, n, tss, covariances,
-                               sandwiches[k], clusters))
+        fitted = _tier_fit(analysis, design, tier, k, t, n, tss, covariances, sandwiches[k],
+                           clusters)
+        tiers.append(replace(fitted, warnings=_rounding_warning(tier.name, t, rounding)))
     comparisons = tuple(
         _compare(analysis, design, numbers[k - 1], numbers[k], tiers[k - 1].name,
                  tiers[k].name, n, sandwiches[k], clusters)
         for k in range(1, len(numbers)))
     return GaussianFit(tuple(tiers), comparisons, tuple(numbers), r)
+
+
+def _rounding_warning(name: str, t: GaussianTier, rounding: float) -> tuple[str, ...]:
+    """A near-exact fit: the residual norm is within a few digits of the QR's rounding in
+    it (max(n, p)·ε·‖y‖, Householder's backward error on the outcome's column), so σ² and
+    every standard error carry only the digits that stand above that rounding."""
+    if t.sigma2 is None or rounding <= 0.0:
+        return ()
+    digits = math.log10(math.sqrt(t.rss) / rounding)
+    if digits >= FEW_DIGITS:
+        return ()
+    shown = max(int(digits), 0)
+    return (f"tier {name}: near-exact fit: the residuals' norm is only 10^{digits:.1f} times "
+            "the QR's rounding bound on it (max(n, p)·ε·‖y‖), so σ² and the standard errors "
+            f"may carry as few as {shown} correct digit{'' if shown == 1 else 's'}",)
 
 
 def _covariance(t: GaussianTier, covariance: Covariance, sandwich: dict) -> np.ndarray | None:
@@ -151,15 +169,17 @@ def _compare(analysis, design, small: GaussianTier, big: GaussianTier, small_nam
     if df_added == 0:
         return Comparison(small_name, big_name, "F", 0, None, None, float(df_big),
                           "the larger tier adds no design columns")
+    if big.sigma2 is None:  # under any covariance: residuals of rounding size test nothing
+        return Comparison(small_name, big_name, "F" if covariance.kind == "classical" else
+                          "Wald", df_added, None, None, float(df_big),
+                          EXACT_FIT + f" in tier {big_name}")
     if covariance.kind != "classical":
         df = reference_df(covariance, "gaussian", df_big, clusters)
         cov = sandwich.get(covariance.label)
-        test = wald_test(big.beta, cov, range(small.width, big.width), df, "Wald")
+        test = wald_test(big.beta, cov, range(small.width, big.width), df, "Wald",
+                         covariance.kind)
         return Comparison(small_name, big_name, "Wald", df_added, test.statistic, test.p_value,
                           test.df_denominator, test.reason)
-    if big.sigma2 is None:
-        return Comparison(small_name, big_name, "F", df_added, None, None, float(df_big),
-                          EXACT_FIT + f" in tier {big_name}")
     f = ((small.rss - big.rss) / df_added) / big.sigma2
     f = max(f, 0.0)  # RSS can only fall as columns are added; a negative is rounding
     return Comparison(small_name, big_name, "F", df_added, finite_or_none(f),

@@ -41,6 +41,7 @@ class GlmTier:
     rinv: np.ndarray | None  # R⁻¹ of W½X
     log_likelihood: float | None
     failure: str | None
+    iterations: int | None = None  # least-squares steps taken, refinement included
 
 
 @dataclass(frozen=True)
@@ -108,10 +109,20 @@ def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str
 
         if separating_direction(x, design.y, family):
             failure = _SEPARATION if family == "binomial" else _ZERO_MEANS
+    iterations = int(result.fit_history["iteration"])
     if failure is None and not result.converged:
-        failure = f"the fit did not converge in {result.fit_history['iteration']} iterations"
+        failure = f"the fit did not converge in {iterations} iterations"
     rinv = None
-    if failure is None:
+    if failure is None:  # on to the rounding floor (statsmodels stops at 9–12 digits)
+        from .irls import REFINE_STEPS, refine
+
+        beta = refine(x, design.y, design.offset, family, beta)
+        iterations += REFINE_STEPS
+        eta = x @ beta + (0.0 if design.offset is None else design.offset)
+        fam = _family(family)
+        mu = np.asarray(fam.fitted(eta), dtype=np.float64)
+        llf = finite_or_none(fam.loglike(design.y, mu, scale=1.0))
+        weights = mu * (1.0 - mu) if family == "binomial" else mu.copy()
         r = augmented_r(x, np.zeros(len(mu)), weights=weights)
         if np.any(np.abs(np.diag(r)[:width]) == 0.0):
             failure = "the weighted design is singular at the solution"
@@ -119,7 +130,8 @@ def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str
             rinv = triangular_inverse(r[:width, :width])
     if failure:
         notes.insert(0, failure)
-    return GlmTier(width, beta, mu, weights, rinv, llf, failure), notes
+        llf = None  # of the last iterate, not of a maximum: nothing to report
+    return GlmTier(width, beta, mu, weights, rinv, llf, failure, iterations), notes
 
 
 _SEPARATION = ("complete or quasi-complete separation: a combination of the design columns "
@@ -186,7 +198,7 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
                                       t.failure)
     deviance = pearson_chi2 = dispersion = None
     warned = list(notes)
-    if t.mu is not None or statistics is not None:
+    if usable and (t.mu is not None or statistics is not None):  # never the last iterate's
         deviance, pearson_chi2 = statistics or _statistics(design, t, analysis.family)
         dispersion = pearson_chi2 / df_resid if df_resid > 0 else None
         if analysis.family == "poisson" and dispersion is not None and \
@@ -199,8 +211,7 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
         n=n, n_parameters=t.width, df_resid=df_resid, log_likelihood=t.log_likelihood,
         aic=aic, bic=bic, coefficients=table, exposure=tuple(inferences),
         deviance=finite_or_none(deviance), null_deviance=null_deviance, pearson_chi2=finite_or_none(pearson_chi2),
-        dispersion=finite_or_none(dispersion), converged=t.failure is None or
-        not t.failure.startswith("the fit did not converge"),
+        dispersion=finite_or_none(dispersion), converged=usable, iterations=t.iterations,
         reason=t.failure, warnings=tuple(f"tier {tier.name}: {w}" for w in warned))
 
 
@@ -223,7 +234,7 @@ def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit
                           "the larger tier adds no design columns")
     if test == "Wald":
         joint = wald_test(big.beta, sandwich.get(covariance.label),
-                          range(small.width, big.width), None, "Wald")
+                          range(small.width, big.width), None, "Wald", covariance.kind)
         return Comparison(small_fit.name, big_fit.name, "Wald", df_added, joint.statistic,
                           joint.p_value, None, joint.reason)
     if small.log_likelihood is None or big.log_likelihood is None:

@@ -148,6 +148,18 @@ class Diagnostics:
 
 
 @dataclass(frozen=True)
+class Reference:
+    """The distribution the analysis covariance's single-coefficient statistics are referred
+    to: ``t`` (gaussian) or ``z`` (binomial, poisson); ``df`` when one value holds for every
+    tier (clustered: clusters − 1), ``label`` in a few words, ``basis`` the reason."""
+
+    distribution: str
+    df: float | None
+    label: str
+    basis: str
+
+
+@dataclass(frozen=True)
 class AnalysisFit:
     analysis: str
     family: str
@@ -158,6 +170,7 @@ class AnalysisFit:
     diagnostics: Diagnostics | None
     events: int | None = None  # binomial: outcome = 1 count
     warnings: tuple[str, ...] = ()
+    reference: Reference | None = None
 
     def tier(self, name: str) -> TierFit:
         return next(t for t in self.tiers if t.name == name)

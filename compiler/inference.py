@@ -62,12 +62,31 @@ def coefficient_table(labels, estimates, cov, df: float | None, confidence: floa
     return tuple(rows)
 
 
-def wald_test(estimates, cov, columns, df: float | None, test: str) -> JointTest:
+# Why a covariance of the tested coefficients can be singular, by covariance kind.
+SINGULAR_CAUSE = {
+    "cluster": "a clustered covariance has rank at most clusters − 1",
+    "robust": "a heteroscedasticity-consistent covariance has rank at most the number of rows "
+              "with a non-zero residual, and carries nothing on a direction that only rows "
+              "fitted exactly (leverage 1) inform",
+    "classical": "the tested columns are nearly aliased",
+}
+
+
+def covariance_kind(label: str) -> str:
+    """``classical``, ``cluster`` or ``robust`` (HC0–HC3) from a covariance label."""
+    if label.startswith("cluster"):
+        return "cluster"
+    return "classical" if label == "classical" else "robust"
+
+
+def wald_test(estimates, cov, columns, df: float | None, test: str,
+              covariance: str = "classical") -> JointTest:
     """Joint test that the coefficients in ``columns`` are all zero.
 
     W = bᵀ V⁻¹ b. With ``df`` given the F form W / q on (q, df) is reported (used for
     gaussian fits, classical — where it equals the nested-model F exactly — or robust);
-    with df None, W itself on χ²(q) (GLM).
+    with df None, W itself on χ²(q) (GLM). ``covariance`` (a label or kind) names the cause
+    when V is singular.
     """
     from scipy import special
 
@@ -85,9 +104,10 @@ def wald_test(estimates, cov, columns, df: float | None, test: str) -> JointTest
     # (numpy.linalg.matrix_rank's tolerance: largest singular value · q · ε).
     rank = int(np.linalg.matrix_rank(v, hermitian=True))
     if rank < q:
+        cause = SINGULAR_CAUSE[covariance_kind(covariance)]
         return JointTest(test, q, df, None, None,
                          f"the covariance of the {q} tested coefficients is singular (rank "
-                         f"{rank}); a clustered covariance has rank at most clusters − 1")
+                         f"{rank}); {cause}")
     try:
         factor = np.linalg.cholesky(v)
     except np.linalg.LinAlgError:
@@ -114,7 +134,7 @@ def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns
     joint = None
     if len(columns) > 1:
         joint = (JointTest(joint_test, len(columns), df, None, None, reason) if reason
-                 else wald_test(estimates, cov, columns, df, joint_test))
+                 else wald_test(estimates, cov, columns, df, joint_test, covariance))
     return ExposureInference(covariance, table, None if df is None else float(df), joint)
 
 

@@ -42,12 +42,44 @@ def augmented_r(x: np.ndarray, y: np.ndarray, weights: np.ndarray | None = None,
         return _augmented_r(lapack, x, y, weights, chunk_rows)
 
 
-def _augmented_r(lapack, x, y, weights, chunk_rows) -> np.ndarray:
+def equilibrated_r(x: np.ndarray, y: np.ndarray, chunk_rows: int = CHUNK_ROWS
+                   ) -> tuple[np.ndarray, np.ndarray]:
+    """(R, scales): the R factor of [X | y]·D⁻¹, D = diag(scales), with ``scales`` from
+    :func:`column_scales` over every row. The scales are found as the chunks go by: when a
+    chunk raises a column's scale, the R of the rows before is rescaled by the ratio, a
+    power of 2 and so exact, and the result is that of scaling first. No extra pass."""
+    from scipy.linalg import lapack
+
+    scales = np.ones(x.shape[1] + 1)
+    with one_blas_thread(x.shape[0]):
+        r = _augmented_r(lapack, x, y, None, chunk_rows, scales)
+    return r, scales
+
+
+def column_scales(maxima: np.ndarray) -> np.ndarray:
+    """Per column, 1 when its largest magnitude lies in [2^-SAFE, 2^SAFE] (or it is zero),
+    else the power of 2 nearest below that magnitude. Householder QR is column-wise
+    backward stable, so scaling a column changes nothing of its accuracy, only its range:
+    squares of 1e160 overflow and those of 1e-160 fall into subnormals (Higham, Accuracy and
+    Stability of Numerical Algorithms, 2nd ed., section 19.3; from memory). A power of 2
+    scales exactly, and ordinary columns are left untouched, bit for bit."""
+    maxima = np.asarray(maxima, dtype=np.float64)
+    safe = (maxima == 0.0) | ((maxima >= 2.0 ** -SAFE) & (maxima <= 2.0 ** SAFE))
+    exponents = np.frexp(np.where(safe, 1.0, maxima))[1] - 1
+    return np.where(safe, 1.0, np.ldexp(1.0, exponents))
+
+
+SAFE = 64  # columns within 2^±64 are never scaled: their squares summed stay normal numbers
+
+
+def _augmented_r(lapack, x, y, weights, chunk_rows, scales=None) -> np.ndarray:
+    """``scales`` given (ones, updated in place): the R of the equilibrated [X | y]."""
     n, p = x.shape
     width = p + 1
     r = np.zeros((0, width))
     lwork = None
     root_w = None if weights is None else np.sqrt(weights)
+    maxima = np.zeros(width)
     for start in range(0, n, chunk_rows):
         stop = min(n, start + chunk_rows)
         top = r.shape[0]
@@ -58,6 +90,12 @@ def _augmented_r(lapack, x, y, weights, chunk_rows) -> np.ndarray:
         part[top:, p] = y[start:stop]
         if root_w is not None:
             part[top:] *= root_w[start:stop, None]
+        if scales is not None:
+            np.maximum(maxima, np.max(np.abs(part[top:]), axis=0, initial=0.0), out=maxima)
+            wanted = column_scales(maxima)
+            part[:top] *= scales / wanted  # the rows before, to the new scales (exact)
+            scales[:] = wanted
+            part[top:] /= scales
         if lwork is None:
             lwork = max(1, int(lapack.dgeqrf(part, lwork=-1)[2][0]))
         factored, _tau, _work, info = lapack.dgeqrf(part, lwork=lwork, overwrite_a=True)

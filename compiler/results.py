@@ -130,11 +130,18 @@ def _coefficient(c) -> dict:
 def _joint(j) -> dict | None:
     if j is None:
         return None
-    return _record(j, ("df_denominator", "statistic", "p_value"), test=j.test, df=int(j.df))
+    return _record(j, ("df_denominator", "statistic", "p_value"), test=j.test, df=int(j.df),
+                   reference=_joint_reference(j.df_denominator))
+
+
+def _joint_reference(df_denominator) -> str:
+    """A joint test's reference: F with a denominator df (gaussian), else χ² (GLM)."""
+    return "chi2" if df_denominator is None else "F"
 
 
 def _inference(e) -> dict:
     return {"covariance": e.covariance, "df": number(e.df),
+            "reference": "z" if e.df is None else "t",
             "coefficients": [_coefficient(c) for c in e.coefficients], "joint": _joint(e.joint)}
 
 
@@ -154,7 +161,7 @@ def _tier(t) -> dict:
 
 def _comparison(c) -> dict:
     out = _record(c, ("statistic", "p_value", "df_denominator"), to=c.to_tier, test=c.test,
-                  df_added=int(c.df_added))
+                  df_added=int(c.df_added), reference=_joint_reference(c.df_denominator))
     out["from"] = c.from_tier
     return out
 
@@ -231,7 +238,15 @@ def fit_parts(fit) -> dict:
             "tiers": [_tier(t) for t in fit.tiers],
             "comparisons": [_comparison(c) for c in fit.comparisons],
             "exposure": [_exposure(r) for r in fit.exposure],
-            "diagnostics": _diagnostics(fit.diagnostics), "warnings": list(fit.warnings)}
+            "diagnostics": _diagnostics(fit.diagnostics), "warnings": list(fit.warnings),
+            "reference": _reference(fit.reference)}
+
+
+def _reference(r) -> dict | None:
+    if r is None:
+        return None
+    return {"distribution": r.distribution, "df": number(r.df), "label": r.label,
+            "basis": r.basis}
 
 
 def decision_records(verdicts) -> list[dict]:

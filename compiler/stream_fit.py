@@ -22,8 +22,10 @@ from typing import Callable, Iterator
 import numpy as np
 
 from . import diagnostics as memory_diagnostics
+from . import equilibrate
 from . import fit as memory_fit
-from .covariance import cluster_meat, cluster_sums, distinct_covariances, sandwich_covariances
+from .covariance import (cluster_meat, cluster_sums, distinct_covariances, reference_of,
+                         sandwich_covariances)
 from .fitted import AnalysisFit, Design, Diagnostics, Influential
 from .inference import finite_or_none
 from .irls import Moments, fit_tiers, moments_combine, moments_map
@@ -42,25 +44,37 @@ class FirstPass:
     r: np.ndarray  # R of [X | y]
     moments: Moments
     events: int
+    scales: np.ndarray  # the equilibration of [X | y] (qr.column_scales); R is of [X | y]/scales
 
 
 def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
                  progress=None, first: "FirstPass | None" = None) -> AnalysisFit:
     """Every tier of ``analysis`` from streamed batches; raises Stop (exit 3) as fit.fit does.
     ``first``: the decomposition pass when the caller already ran it (alongside the bind)."""
-    if first is None:
-        decomposition = Decomposition()
-        for design in passes():
-            decomposition.add(design)
-            _show(progress, f"{analysis.id}: decomposing, {decomposition.rows:,} rows")
-        first = decomposition.result()
-    header = first.header
+    with np.errstate(all="ignore"):  # what floating point flags becomes None with a reason
+        if first is None:
+            decomposition = Decomposition()
+            for design in passes():
+                decomposition.add(design)
+                _show(progress, f"{analysis.id}: decomposing, {decomposition.rows:,} rows")
+            first = decomposition.result()
+        return _fit_streamed(plan, analysis, passes, progress, first)
+
+
+def _fit_streamed(plan, analysis, passes, progress, first: FirstPass) -> AnalysisFit:
+    header, scales = first.header, first.scales
+    gaussian = analysis.family == "gaussian"
+    if equilibrate.needed(scales):  # every later pass sees the equilibrated columns
+        original = passes
+
+        def passes():
+            return (equilibrate.scaled(d, scales, gaussian) for d in original())
     memory_fit._check_sizes(analysis, header)
-    memory_fit._check_outcome(analysis, header, first.r)
+    memory_fit._check_outcome(analysis, header, first.r, scales)
     memory_fit._check_rank(plan, analysis, header, first.r)
     covariances = distinct_covariances(plan, analysis)
     report = list(header.tier_names).index(analysis.report_tier)
-    if analysis.family == "gaussian":
+    if gaussian:
         tiers, comparisons, diagnostics = _gaussian(analysis, passes, first, covariances,
                                                     report, progress)
         events = None
@@ -68,12 +82,13 @@ def fit_streamed(plan: Plan, analysis: Analysis, passes: DesignPasses,
         tiers, comparisons, diagnostics = _glm(analysis, passes, first, covariances, report,
                                                progress)
         events = first.events if analysis.family == "binomial" else None
-    return AnalysisFit(
+    return memory_fit.mapped_back(AnalysisFit(
         analysis=analysis.id, family=analysis.family, n=int(first.moments.n), tiers=tiers,
         comparisons=comparisons,
-        exposure=memory_fit.exposure_across_tiers(tiers, analysis.family != "gaussian"),
+        exposure=memory_fit.exposure_across_tiers(tiers, not gaussian),
         diagnostics=diagnostics, events=events,
-        warnings=tuple(w for tier in tiers for w in tier.warnings))
+        warnings=tuple(w for tier in tiers for w in tier.warnings),
+        reference=reference_of(analysis.covariance, analysis.family, tiers)), scales, gaussian)
 
 
 class Decomposition:
@@ -93,7 +108,7 @@ class Decomposition:
     def add(self, design: Design) -> None:
         if self.accumulator is None:
             self.shape = design
-            self.accumulator = TsqrAccumulator(design.x.shape[1] + 1)
+            self.accumulator = TsqrAccumulator(design.x.shape[1] + 1, equilibrate=True)
         self.accumulator.add(np.column_stack([design.x, design.y]))
         self.moments.append(moments_map((design.x, design.y, design.offset)))
         self.events += int(np.sum(design.y == 1.0))
@@ -105,7 +120,8 @@ class Decomposition:
         header = replace(self.shape, x=np.broadcast_to(np.float64(0), (n, p)),
                          y=np.broadcast_to(np.float64(0), (n,)), offset=None, cluster=None,
                          row_ids=None)
-        return FirstPass(header, self.accumulator.r, total, self.events)
+        return FirstPass(header, self.accumulator.r, total, self.events,
+                         self.accumulator.scales)
 
 
 def _show(progress, text: str) -> None:
@@ -330,7 +346,8 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
         failure = _glm_failure(analysis.family, fit, fit_glm)
         rinv = None if failure else triangular_inverse(fit.r_solution)
         numbers.append(GlmTier(fit.width, fit.params, None, None, rinv,
-                               finite_or_none(fit.log_likelihood), failure))
+                               None if failure else finite_or_none(fit.log_likelihood),
+                               failure, int(fit.iterations)))
         notes.append([failure] if failure else [])
     kinds = _robust_kinds(covariances)
     totals = [{} for _ in widths]

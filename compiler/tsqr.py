@@ -18,6 +18,8 @@ from typing import Iterable
 
 import numpy as np
 
+from .qr import column_scales
+
 PIECE_ROWS = 8192  # as compiler/qr.py's CHUNK_ROWS: a piece of a batch fits in cache
 
 
@@ -56,15 +58,30 @@ class TsqrAccumulator:
     of the tree rather than with the number of batches.
     """
 
-    def __init__(self, width: int):
+    def __init__(self, width: int, equilibrate: bool = False):
         self.width = width
         self.rows = 0
         self._levels: list[np.ndarray | None] = []
+        # equilibrate: R is that of the block's columns over ``scales`` (qr.column_scales of
+        # every row so far); a held R is rescaled, exactly, when a batch raises a scale
+        self.scales = np.ones(width)
+        self._maxima = np.zeros(width) if equilibrate else None
 
     def add(self, block: np.ndarray) -> None:
         if block.shape[1] != self.width:
             raise ValueError(f"batch has {block.shape[1]} columns, expected {self.width}")
         self.rows += block.shape[0]
+        if self._maxima is not None:
+            np.maximum(self._maxima, np.max(np.abs(block), axis=0, initial=0.0),
+                       out=self._maxima)
+            wanted = column_scales(self._maxima)
+            if np.any(wanted != self.scales):
+                ratio = self.scales / wanted
+                self._levels = [None if held is None else held * ratio
+                                for held in self._levels]
+                self.scales = wanted
+            if np.any(self.scales != 1.0):
+                block = block / self.scales
         # a large batch in cache-sized pieces: Householder QR is memory-bound on tall blocks
         for start in range(0, max(block.shape[0], 1), PIECE_ROWS):
             self.add_partial(tsqr_map(block[start:start + PIECE_ROWS]))

@@ -121,8 +121,10 @@ def _facts(a: dict, decisions=()) -> list[tuple[str, str]]:
         facts.append(("events (outcome = 1)", f.integer(a["events"])))
     if a.get("offset"):
         facts.append(("offset", f"log({a['offset']})"))
-    facts += [("covariance", _covariance_fact(a, decisions)),
-              ("confidence", f.level(a["confidence"])),
+    facts.append(("covariance", _covariance_fact(a, decisions)))
+    if a.get("reference"):
+        facts.append(("reference distribution", a["reference"]["label"]))
+    facts += [("confidence", f.level(a["confidence"])),
               ("report tier", a["report_tier"])]
     return facts
 
