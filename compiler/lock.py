@@ -105,9 +105,14 @@ def freeze(plan_path: str | Path):
                                          "a lock already exists and holds a different plan",
                                          hint=f"to record the change: prespec amend {plan_path} "
                                               "--reason TEXT")], Exit.LOCK)
+        file_sha = sha256_hex(Path(plan_path).read_bytes())
+        layout = state.frozen_file_sha256 not in (None, file_sha)
         return Report(lines=[f"{plan_path}: already frozen at {state.frozen_at} "
-                             f"(plan sha256 {sha[:12]}); {target} is unchanged"],
-                      payload=_payload(target, state.document, already=True))
+                             f"(plan sha256 {sha[:12]}); {target} is unchanged"
+                             + ("; the file differs from the frozen text in comments or layout "
+                                "only" if layout else "")],
+                      payload={**_payload(target, state.document, already=True),
+                               "comments_or_layout_differ": layout})
     file_sha = sha256_hex(Path(plan_path).read_bytes())
     record = {"sha256": sha, "file_sha256": file_sha, "language": plan.language,
               "tool": TOOL, "time": now_utc()}

@@ -200,3 +200,14 @@ def test_a_reformatted_plan_is_described_in_the_report():
     document["lock"]["plan_text"] = "as frozen"
     html = render_html(document, sample.plots(), results_sha256=sample.RESULTS_SHA)
     assert "byte for byte the text frozen" in html
+
+
+def test_freeze_of_a_plan_changed_in_comments_only_says_so_and_keeps_the_lock(plan_file):
+    lock.freeze(plan_file)
+    before = lock.lock_path(plan_file).read_bytes()
+    assert "comments or layout" not in lock.freeze(plan_file).lines[0]
+    bundlekit.edit(plan_file, "decisions:\n", "# reviewed\ndecisions:\n")
+    report = lock.freeze(plan_file)
+    assert "differs from the frozen text in comments or layout only" in report.lines[0]
+    assert report.payload["comments_or_layout_differ"] is True
+    assert lock.lock_path(plan_file).read_bytes() == before
