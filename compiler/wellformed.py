@@ -6,8 +6,10 @@ fault, the faulty parts are left out and the resolver checks what remains. The p
 out for a fault is the smallest one the resolver can do without:
 
 - an unknown key: that key alone (the mapping holding it is otherwise checked);
-- a fault inside a variable, a population, an analysis, a decision, an assumption or a
-  multiplicity family: that entry, whole;
+- a fault in one term of a tier, or in one condition of a population: that term or
+  condition (the analysis or population stays, to be checked and referred to);
+- any other fault inside a variable, a population, an analysis, a decision, an assumption
+  or a multiplicity family: that entry, whole;
 - a fault in ``study``, ``data`` or ``prespec``, or in the shape of a whole section: the
   section.
 
@@ -97,16 +99,33 @@ def _without(tree: Tree, faults: list[Fault], broken: Broken) -> Tree:
 
 
 def _part(path: tuple) -> tuple:
+    if _under(path, ("analyses", int, "tiers", int, "add", int)):
+        return path[:6]  # one term of a tier: nothing refers to it by name
+    if _under(path, ("populations", str, "where", int)):
+        return path[:4]  # one condition of a population, which stays to be referred to
     if path and path[0] in ENTRY_SECTIONS and len(path) >= 2:
         return path[:2]
     return path[:1]
 
 
+def _under(path: tuple, pattern: tuple) -> bool:
+    """Whether ``path`` begins as ``pattern`` does: a key equal, an index or name of its type."""
+    if len(path) < len(pattern):
+        return False
+    for step, want in zip(path, pattern):
+        if isinstance(want, type):
+            if not isinstance(step, want) or isinstance(step, bool):
+                return False
+        elif step != want:
+            return False
+    return True
+
+
 def _record(tree: Tree, part: tuple, broken: Broken) -> None:
     section = part[0]
     space = ENTRY_SECTIONS.get(section)
-    if space is None:
-        return  # study, data, prespec, multiplicity: nothing refers to them by name
+    if space is None or len(part) > 2:
+        return  # study, data, prespec, families, a term, a condition: none is referred to
     if len(part) == 1:
         broken.whole.add(space)
         return

@@ -172,3 +172,31 @@ def test_the_resolver_still_checks_a_mapping_whose_unknown_key_was_left_out(tmp_
     with pytest.raises(Stop) as caught:
         compile_plan(path)
     assert [p.code for p in caught.value.problems] == ["unknown-key", "unknown-tier"]
+
+
+def test_a_malformed_term_leaves_the_rest_of_its_analysis_checked(tmp_path):
+    document = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
+    full = document["analyses"][0]["tiers"][2]["add"]
+    full[2] = {"power": "age", "degre": 2}  # a misspelt key in one term...
+    full[3] = "screen_hour"  # ...and an unknown variable in the next
+    document["decisions"][0]["level"] = "coachd"  # a decision on the same analysis
+    path = tmp_path / "plan.yaml"
+    path.write_text(yaml.safe_dump(document, sort_keys=False), encoding="utf-8")
+    with pytest.raises(Stop) as caught:
+        compile_plan(path)
+    codes = [p.code for p in caught.value.problems]
+    assert set(codes[:2]) == {"unknown-key", "missing-key"}  # the term's, from the schema
+    assert codes[2:] == ["unknown-variable", "unknown-level"]  # the resolver's, after
+
+
+def test_a_malformed_condition_leaves_its_population_to_be_referred_to(tmp_path):
+    document = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
+    document["populations"]["per-protocol"]["where"][1] = {"variable": "sessions_attended",
+                                                          "at_lest": 2}
+    document["populations"]["per-protocol"]["where"].append({"variable": "agee", "below": 90})
+    path = tmp_path / "plan.yaml"
+    path.write_text(yaml.safe_dump(document, sort_keys=False), encoding="utf-8")
+    with pytest.raises(Stop) as caught:
+        compile_plan(path)
+    codes = [p.code for p in caught.value.problems]
+    assert codes[-1] == "unknown-variable" and "unknown-population" not in codes, codes
