@@ -60,7 +60,7 @@ def _cmd_freeze(args) -> Report:
 def _cmd_amend(args) -> Report:
     from .lock import amend
 
-    return amend(args.plan, args.reason)
+    return amend(args.plan, args.reason, outcome_data_seen=args.outcome_data_seen)
 
 
 def _cmd_run(args) -> Report:
@@ -121,6 +121,12 @@ def build_parser() -> argparse.ArgumentParser:
                        description="Re-freeze a changed plan and append to its amendment log.")
     p.add_argument("plan", metavar="PLAN")
     p.add_argument("--reason", required=True, metavar="TEXT", help="why the plan changed")
+    seen = p.add_mutually_exclusive_group()  # one is required: lock.amend says so, with a hint
+    seen.add_argument("--before-unblinding", dest="outcome_data_seen", action="store_false",
+                      default=None, help="no outcome data had been seen when the plan changed")
+    seen.add_argument("--after-unblinding", dest="outcome_data_seen", action="store_true",
+                      default=None, help="outcome data had been seen; later reports are "
+                                         "stamped AMENDED AFTER UNBLINDING on every page")
     p.set_defaults(handler=_cmd_amend)
 
     p = sub.add_parser("run", parents=[common], help="the confirmatory run: fit, decide, seal",

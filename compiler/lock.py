@@ -6,12 +6,16 @@ The lock is ``PLAN.lock.json`` beside the plan (``plans/x.yaml`` → ``plans/x.y
     plan            {file, sha256, file_sha256, language}: the plan as it stands now
     canonical_plan  the canonical plan form (compiler.canonical), so a run can say what changed
     freeze          {sha256, file_sha256, language, tool, time}: the first freeze
-    amendments      [{previous, new, reason, time, file_sha256, tool, digest_of_previous_entry}]
+    amendments      [{previous, new, reason, outcome_data_seen, time, file_sha256, tool,
+                     digest_of_previous_entry}]
     head            the digest of the last amendment (of the freeze record before any)
 
 The amendment log is a hash chain: each entry carries the digest (sha256 of the canonical
 bytes) of the entry before it, the first entry the digest of the freeze record, so editing,
 reordering or removing an entry breaks the chain, and ``head`` covers the last entry.
+``outcome_data_seen`` is the analyst's statement, required by ``amend``, whether outcome data
+had been seen (unblinded) when the plan was changed; entries written before it was recorded
+lack it and read as "not stated" (None), and the chain checks them as they are.
 (Without a secret nothing stops a forger who recomputes every digest; the chain catches
 edits by hand, and each bundle keeps the lock's digest as it was run.) The lock is written indented for people
 to read in review; only its parsed content counts.
@@ -56,8 +60,15 @@ class LockState:
         return self.document["plan"]["sha256"]
 
     @property
+    def frozen_file_sha256(self) -> str | None:
+        """sha256 of the plan file's bytes when it was frozen or last amended."""
+        return self.document["plan"].get("file_sha256")
+
+    @property
     def amendments(self) -> list[dict]:
-        return [{k: e[k] for k in ("previous", "new", "reason", "time")}
+        """The log as a run reports it; ``outcome_data_seen`` None where it was not stated."""
+        return [{**{k: e[k] for k in ("previous", "new", "reason", "time")},
+                 "outcome_data_seen": e.get("outcome_data_seen")}
                 for e in self.document["amendments"]]
 
 
@@ -94,9 +105,14 @@ def freeze(plan_path: str | Path):
                                          "a lock already exists and holds a different plan",
                                          hint=f"to record the change: prespec amend {plan_path} "
                                               "--reason TEXT")], Exit.LOCK)
+        file_sha = sha256_hex(Path(plan_path).read_bytes())
+        layout = state.frozen_file_sha256 not in (None, file_sha)
         return Report(lines=[f"{plan_path}: already frozen at {state.frozen_at} "
-                             f"(plan sha256 {sha[:12]}); {target} is unchanged"],
-                      payload=_payload(target, state.document, already=True))
+                             f"(plan sha256 {sha[:12]}); {target} is unchanged"
+                             + ("; the file differs from the frozen text in comments or layout "
+                                "only" if layout else "")],
+                      payload={**_payload(target, state.document, already=True),
+                               "comments_or_layout_differ": layout})
     file_sha = sha256_hex(Path(plan_path).read_bytes())
     record = {"sha256": sha, "file_sha256": file_sha, "language": plan.language,
               "tool": TOOL, "time": now_utc()}
@@ -108,11 +124,20 @@ def freeze(plan_path: str | Path):
                          f"→ {target}"], payload=_payload(target, document, already=False))
 
 
-def amend(plan_path: str | Path, reason: str):
-    """`prespec amend PLAN --reason TEXT`: re-freeze a changed plan, chaining the log."""
+def amend(plan_path: str | Path, reason: str, *, outcome_data_seen: bool | None = None):
+    """`prespec amend PLAN --reason TEXT --before-unblinding|--after-unblinding`: re-freeze a
+    changed plan, chaining the log. Whether outcome data had been seen must be stated."""
     from .cli import Report
     from .pipeline import compile_plan
 
+    if outcome_data_seen is None:
+        raise Stop([Problem("the amendment must state whether outcome data had been seen: "
+                            "--before-unblinding or --after-unblinding",
+                            code="unblinding-not-stated",
+                            hint="--after-unblinding when anyone who changed the plan had seen "
+                                 "outcome data, or results computed from them; every later "
+                                 "report is then stamped AMENDED AFTER UNBLINDING on each page")],
+                   Exit.PLAN_INVALID)
     plan = compile_plan(plan_path)
     target = lock_path(plan_path)
     if not target.exists():
@@ -134,17 +159,20 @@ def amend(plan_path: str | Path, reason: str):
     previous_entry = log[-1] if log else document["freeze"]
     file_sha = sha256_hex(Path(plan_path).read_bytes())
     entry = {"previous": state.plan_sha256, "new": sha, "reason": reason.strip(),
-             "time": now_utc(), "file_sha256": file_sha, "tool": TOOL,
+             "outcome_data_seen": bool(outcome_data_seen), "time": now_utc(),
+             "file_sha256": file_sha, "tool": TOOL,
              "digest_of_previous_entry": digest(previous_entry)}
     document = {**document, "amendments": [*log, entry], "head": digest(entry),
                 "plan": _plan_entry(plan_path, plan, sha, file_sha),
                 "canonical_plan": plan_form(plan)}
     _write(target, document)
-    lines = [f"{plan_path}: amended at {entry['time']}: plan sha256 {state.plan_sha256[:12]} "
-             f"→ {sha[:12]} (amendment {len(log) + 1}) → {target}"]
+    seen = "after unblinding" if outcome_data_seen else "before unblinding"
+    lines = [f"{plan_path}: amended at {entry['time']} ({seen}): plan sha256 "
+             f"{state.plan_sha256[:12]} → {sha[:12]} (amendment {len(log) + 1}) → {target}"]
     lines += [f"  {change}" for change in changes]
     return Report(lines=lines, payload={**_payload(target, document, already=False),
-                                        "changes": changes, "reason": entry["reason"]})
+                                        "changes": changes, "reason": entry["reason"],
+                                        "outcome_data_seen": entry["outcome_data_seen"]})
 
 
 # ---------------------------------------------------------------------------------------------
@@ -209,6 +237,9 @@ def check_lock(document) -> list[str]:
                 before = "the freeze record" if number == 1 else f"amendment {number - 1}"
                 problems.append(f"the amendment chain is broken at {name}: its "
                                 f"digest_of_previous_entry does not match {before}")
+            if not isinstance(entry.get("outcome_data_seen", False), bool):
+                problems.append(f"{name}: outcome_data_seen must be true or false, not "
+                                f"{entry.get('outcome_data_seen')!r}")
             if entry.get("previous") != expected:
                 problems.append(f"the amendment chain is broken at {name}: it amends plan "
                                 f"{str(entry.get('previous'))[:12]}, but the plan before it "

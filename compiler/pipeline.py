@@ -45,14 +45,20 @@ class Analysed:
 
 
 def compile_plan(path: str | Path, *, loaded=None) -> Plan:
-    """load → validate → resolve. Raises problems.Stop (exit 2) with every problem found.
+    """load → validate → resolve. Raises problems.Stop (exit 2) with every problem found:
+    the schema's, then the resolver's on the parts the schema found no fault with.
     ``loaded`` is called with the source tree as soon as it is read, before the checks."""
-    from . import load, resolve, validate
+    from . import load, resolve, validate, wellformed
+    from .problems import Exit, Stop
 
     tree = load.load(path)
     if loaded is not None:
         loaded(tree)
-    validate.validate(tree)
+    shape, faults = validate.check(tree)
+    if shape:
+        rest, broken = wellformed.well_formed(tree, faults, recheck=validate.faults)
+        more = resolve.problems_in(rest, broken) if rest is not None else ()
+        raise Stop((*shape, *more), Exit.PLAN_INVALID)
     return resolve.resolve(tree)
 
 

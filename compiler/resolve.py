@@ -18,8 +18,9 @@ from .plan import (
     PLAN_LANGUAGE_VERSION, Analysis, Condition, Covariance, DataSource, MinimumInformation,
     Plan, Population, Study, Term, Tier, Variable,
 )
-from .problems import Exit, Place, Problem, stop_if_errors
+from .problems import Exit, Place, Problem, Stop, stop_if_errors
 from .suggest import did_you_mean
+from .wellformed import NOTHING_BROKEN, Broken
 
 _FAMILY_OUTCOMES = {"gaussian": ("continuous", "count"), "binomial": ("binary",),
                     "poisson": ("count",)}
@@ -31,11 +32,12 @@ _CODE_LIKE = set("()+-/*^=<>!,;:'\"[]{} \t")
 class Context:
     """What resolution has learnt so far, and every problem found on the way."""
 
-    def __init__(self, tree: Tree):
+    def __init__(self, tree: Tree, broken: Broken = NOTHING_BROKEN):
         self.source = tree.source
         self.problems: list[Problem] = []
         self.variables: dict[str, Variable] = {}
         self.unresolved: set[str] = set()  # decision ids whose analysis is unknown
+        self.broken = broken  # parts the schema found fault with, left out (wellformed.py)
 
     def error(self, message: str, place: Place, hint: str | None = None, code: str = "") -> None:
         self.problems.append(Problem(message, place, hint=hint, code=code))
@@ -45,6 +47,8 @@ class Context:
         name = node.value if isinstance(node, Scalar) else None
         if isinstance(name, str) and name in self.variables:
             return self.variables[name]
+        if self.broken.hides("variables", name):
+            return None  # declared, but its entry was reported by the schema check
         hint = did_you_mean(name, self.variables)
         if hint is None and isinstance(name, str) and _CODE_LIKE & set(name):
             hint = ("a term is a declared variable name or a mapping such as {log: VAR}, "
@@ -88,30 +92,41 @@ def article(word: str) -> str:
 # ---------------------------------------------------------------------------------------------
 
 
-def resolve(tree: Tree) -> Plan:
-    """Build the Plan; raise one Stop (exit 2) with every semantic problem found."""
+def resolve(tree: Tree, broken: Broken = NOTHING_BROKEN) -> Plan:
+    """Build the Plan; raise one Stop (exit 2) with every semantic problem found.
+    ``broken``: the parts of a plan that failed the schema, already left out of ``tree``
+    (compiler.wellformed), whose absence is not to be reported again."""
     from .resolve_rules import resolve_rules
 
-    ctx = Context(tree)
+    ctx = Context(tree, broken)
     root = tree.root
-    study_node = root.get("study")
+    empty = Mapping({}, {}, root.place)
+    study_node = root.get("study") or empty
     study = Study(value(study_node, "id"), value(study_node, "title"), value(study_node, "version"))
-    variables = root.get("variables")
+    variables = root.get("variables") or empty
     for name, node in variables.entries.items():
         if name == INTERCEPT:
             ctx.error(f"`{INTERCEPT}` is the label of the model's intercept column, so no "
                       "variable may be named so", variables.key_places[name],
                       code="reserved-name")
         ctx.variables[name] = _variable(ctx, name, node)
-    empty = Mapping({}, {}, root.place)
     data = _data(ctx, root.get("data") or empty)
     populations = tuple(_population(ctx, name, node)
                         for name, node in (root.get("populations") or empty).entries.items())
-    analyses = _analyses(ctx, root.get("analyses"), populations)
+    analyses = _analyses(ctx, root.get("analyses") or Sequence((), root.place), populations)
     decisions, assumptions, multiplicity = resolve_rules(ctx, root, analyses)
     stop_if_errors(ctx.problems, Exit.PLAN_INVALID)
     return Plan(PLAN_LANGUAGE_VERSION, study, data, tuple(ctx.variables.values()), populations,
                 analyses, decisions, assumptions, multiplicity, source=tree.source)
+
+
+def problems_in(tree: Tree, broken: Broken) -> tuple[Problem, ...]:
+    """The resolver's problems with the well-formed parts of a plan that failed the schema."""
+    try:
+        resolve(tree, broken)
+    except Stop as stop:
+        return stop.problems
+    return ()
 
 
 def _variable(ctx: Context, name: str, node: Mapping) -> Variable:
@@ -330,12 +345,12 @@ def _analysis_population(ctx: Context, node: Mapping, where: str,
     names = [p.name for p in populations]
     given = node.get("population")
     if given is not None:
-        if given.value not in names:
+        if given.value not in names and not ctx.broken.hides("populations", given.value):
             known = f" ({', '.join(names)})" if names else "; the plan declares none"
             ctx.error(f"unknown population `{given.value}`{known}", given.place,
                       hint=did_you_mean(given.value, names), code="unknown-population")
         return given.value
-    if len(names) > 1:
+    if len(names) + ctx.broken.count("populations") > 1:
         ctx.error(f"{where} must name its `population`: the plan declares {len(names)} "
                   f"({', '.join(names)})", node.place, code="missing-population")
     return names[0] if names else None

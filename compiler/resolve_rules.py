@@ -65,6 +65,8 @@ def _analysis_of(ctx: Context, node: Mapping, by_id: dict[str, Analysis]) -> Ana
     given = value(node, "analysis")
     if given in by_id:
         return by_id[given]
+    if ctx.broken.hides("analyses", given):
+        return None  # its entry failed the schema check, and was reported there
     ctx.error(f"unknown analysis `{given}` ({', '.join(by_id)})", node.get("analysis").place,
               hint=did_you_mean(given, by_id), code="unknown-analysis")
     return None
@@ -276,7 +278,7 @@ def _assumption(ctx: Context, node: Mapping, by_id: dict[str, Analysis], ids: di
 
 
 def _unknown_decision(ctx: Context, item, decisions: dict[str, Decision]) -> None:
-    if item.value not in ctx.unresolved:
+    if item.value not in ctx.unresolved and not ctx.broken.hides("rules", item.value):
         ctx.error(f"unknown decision `{item.value}`", item.place,
                   hint=did_you_mean(item.value, decisions), code="unknown-decision")
 

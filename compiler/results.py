@@ -58,9 +58,18 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
         "decisions": decision_records(analysed.verdicts),
         "assumptions": assumption_records(analysed.assumptions),
         "amendments": lock.amendments if lock is not None else [],
-        "lock": None if lock is None else {"sha256": lock.sha256, "frozen_at": lock.frozen_at,
-                                           "amended_at": lock.amended_at},
+        "lock": None if lock is None else _lock(lock, plan_file_sha256),
     }
+
+
+def _lock(lock, plan_file_sha256: str) -> dict:
+    """The lock the run matched. The run matched its canonical digest, so a plan file whose
+    bytes are not the ones frozen differs in comments or layout only."""
+    frozen = lock.frozen_file_sha256
+    return {"sha256": lock.sha256, "frozen_at": lock.frozen_at, "amended_at": lock.amended_at,
+            "file_sha256": frozen,
+            "plan_text": None if frozen is None else (
+                "as frozen" if frozen == plan_file_sha256 else "comments or layout differ")}
 
 
 # ---------------------------------------------------------------------------------------------

@@ -13,9 +13,10 @@ import json
 from typing import Iterator
 
 from .load import Mapping, Scalar, Tree, reads_as_text
-from .problems import Exit, Place, Problem, stop_if_errors
+from .problems import Exit, Place, Problem, sorted_problems, stop_if_errors
 from .resources import schema_path
 from .suggest import did_you_mean
+from .wellformed import Fault
 
 _validator = None
 
@@ -46,12 +47,36 @@ def _inline_refs(node, defs: dict):
 
 def validate(tree: Tree) -> None:
     """Raise one Stop (exit 2) holding every schema error, each at its place."""
+    stop_if_errors(check(tree)[0], Exit.PLAN_INVALID)
+
+
+def check(tree: Tree) -> tuple[tuple[Problem, ...], list[Fault]]:
+    """Every schema error as a problem at its place (in file order), and where each fault
+    lies, for compiler.wellformed to leave out before the resolver checks the rest."""
     validator = _plan_validator()
     problems: dict[tuple, Problem] = {}
+    found: list[Fault] = []
     for error in validator.iter_errors(tree.to_python()):
+        found += _faults(error)
         for problem in _problems(error, tree, validator.schema):
             problems.setdefault((problem.place, problem.message), problem)
-    stop_if_errors(problems.values(), Exit.PLAN_INVALID)
+    return sorted_problems(problems.values()), found
+
+
+def faults(tree: Tree) -> list[Fault]:
+    """Where the schema finds fault with ``tree``, without the wording."""
+    return [f for error in _plan_validator().iter_errors(tree.to_python())
+            for f in _faults(error)]
+
+
+def _faults(error) -> list[Fault]:
+    path = tuple(error.absolute_path)
+    if "propertyNames" in error.absolute_schema_path:
+        return [Fault(path + (error.instance,))]  # the entry whose name is not usable
+    if error.validator == "additionalProperties" and isinstance(error.instance, dict):
+        known = error.schema.get("properties", {})
+        return [Fault(path + (key,), exact=True) for key in error.instance if key not in known]
+    return [Fault(path)]
 
 
 # ---------------------------------------------------------------------------------------------
@@ -123,7 +148,8 @@ def _generic(error, place: Place, what: str, value: str, node) -> Problem:
             hint = "write true or false"
     elif rule == "enum":
         message = f"{what} must be one of {', '.join(map(str, limit))}; not {value}"
-        hint = did_you_mean(instance, [str(v) for v in limit])
+        crossed = _CROSSED.get((what, instance)) if isinstance(instance, str) else None
+        hint = crossed or did_you_mean(instance, [str(v) for v in limit])
     elif rule == "const":
         message = f"{what} must be {_show(limit)}, not {value}"
     elif rule in _BOUND_WORDS:
@@ -143,6 +169,19 @@ def _generic(error, place: Place, what: str, value: str, node) -> Problem:
     return Problem(message, place, hint=hint, code=rule)
 
 
+# a family written as a variable's kind, or a kind as an analysis' family
+_CROSSED = {
+    ("`kind`", "binomial"): "`binomial` is a family; the kind of a 0/1 variable is `binary`",
+    ("`kind`", "gaussian"): "`gaussian` is a family; the kind of a measured variable is "
+                            "`continuous`",
+    ("`kind`", "poisson"): "`poisson` is a family; the kind of a variable that counts is `count`",
+    ("`family`", "binary"): "`binary` is a kind of variable; the family of an analysis of a "
+                            "0/1 outcome is `binomial`",
+    ("`family`", "continuous"): "`continuous` is a kind of variable; the family of an analysis "
+                                "of a continuous outcome is `gaussian`",
+    ("`family`", "count"): "`count` is a kind of variable; the family of an analysis of a "
+                           "count outcome is `poisson`",
+}
 _TYPE_WORDS = {"string": "text", "number": "a number", "integer": "a whole number",
                "boolean": "true or false", "object": "a mapping", "array": "a list",
                "null": "empty"}

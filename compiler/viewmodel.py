@@ -47,16 +47,16 @@ def build(results: dict, plots: dict, *, results_sha256: str) -> dict:
 def stamp(results: dict) -> dict:
     if results["rehearsal"]:
         return {"word": "REHEARSAL", "cls": "stamp-rehearsal", "rehearsal": True,
-                "note": results.get("rehearsal_note") or "not a confirmatory run"}
+                "note": results.get("rehearsal_note") or "not a confirmatory run", "flag": None}
     if results["preregistered"]:
         lock = results.get("lock") or {}
         note = f"plan frozen {lock['frozen_at']}" if lock.get("frozen_at") else ""
         if lock.get("amended_at"):
             note += f", last amended {lock['amended_at']}"
         return {"word": "PRE-REGISTERED", "cls": "stamp-prereg", "rehearsal": False,
-                "note": note}
+                "note": note, "flag": after_unblinding(results)}
     return {"word": "NOT PRE-REGISTERED", "cls": "stamp-unlocked", "rehearsal": False,
-            "note": "run without a matching lock"}
+            "note": "run without a matching lock", "flag": None}
 
 
 def flow_view(a: dict) -> dict:
@@ -99,6 +99,27 @@ def assumption_view(a: dict) -> dict:
             "covariance": a["covariance"], "reason": a["reason"]}
 
 
+SEEN_WORDS = {True: "after unblinding: outcome data had been seen",
+              False: "before unblinding: no outcome data had been seen",
+              None: "not stated (the amendment predates this record)"}
+PLAN_TEXT_WORDS = {
+    "as frozen": "The plan file run is byte for byte the text frozen.",
+    "comments or layout differ": "The plan file run differs from the text frozen in comments "
+                                 "or layout only: its canonical form, which the lock holds, is "
+                                 "the same.",
+}
+
+
+def after_unblinding(results: dict) -> str | None:
+    """The stamp every page carries when any amendment was made after unblinding."""
+    late = [(number, e["time"]) for number, e in enumerate(results["amendments"], start=1)
+            if e.get("outcome_data_seen") is True]
+    if not late:
+        return None
+    listed = ", ".join(f"{number} ({time})" for number, time in late)
+    return f"AMENDED AFTER UNBLINDING: amendment{'s' if len(late) > 1 else ''} {listed}"
+
+
 def amendments_view(results: dict) -> dict:
     lock = results.get("lock")
     if lock is None:
@@ -107,8 +128,12 @@ def amendments_view(results: dict) -> dict:
                   "A rehearsal reads the plan as it stands; no lock is checked.")
     else:
         status = f"Plan frozen {lock['frozen_at']}; lock file sha256 {lock['sha256']}."
+        words = PLAN_TEXT_WORDS.get(lock.get("plan_text"))
+        status += f" {words}" if words else ""
     entries = [{"time": e["time"], "previous": f.short(e["previous"]), "new": f.short(e["new"]),
-                "previous_full": e["previous"], "new_full": e["new"], "reason": e["reason"]}
+                "previous_full": e["previous"], "new_full": e["new"], "reason": e["reason"],
+                "seen": SEEN_WORDS[e.get("outcome_data_seen")],
+                "late": e.get("outcome_data_seen") is True}
                for e in results["amendments"]]
     return {"status": status, "entries": entries,
             "empty": "No amendments." if lock is not None and not entries else None}

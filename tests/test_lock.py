@@ -106,7 +106,8 @@ def test_amend_appends_a_chained_entry_with_the_reason(plan_file):
     lock.freeze(plan_file)
     frozen = json.loads(lock.lock_path(plan_file).read_text(encoding="utf-8"))
     edit(plan_file, "confidence: 0.95", "confidence: 0.9")
-    report = lock.amend(plan_file, "the steering group asked for 90% intervals")
+    report = lock.amend(plan_file, "the steering group asked for 90% intervals",
+                        outcome_data_seen=False)
     amended = json.loads(lock.lock_path(plan_file).read_text(encoding="utf-8"))
     entry = amended["amendments"][0]
     assert report.exit_code == Exit.OK
@@ -118,21 +119,21 @@ def test_amend_appends_a_chained_entry_with_the_reason(plan_file):
 
 
 def test_amend_without_a_lock_exits_4(plan_file):
-    assert stop_of(lambda: lock.amend(plan_file, "why")).exit_code == Exit.LOCK
+    assert stop_of(lambda: lock.amend(plan_file, "why", outcome_data_seen=False)).exit_code == Exit.LOCK
 
 
 def test_amend_of_an_unchanged_plan_exits_4(plan_file):
     lock.freeze(plan_file)
-    stop = stop_of(lambda: lock.amend(plan_file, "why"))
+    stop = stop_of(lambda: lock.amend(plan_file, "why", outcome_data_seen=False))
     assert stop.exit_code == Exit.LOCK and "unchanged" in stop.problems[0].message
 
 
 def _amended_twice(plan_file) -> Path:
     lock.freeze(plan_file)
     edit(plan_file, "confidence: 0.95", "confidence: 0.9")
-    lock.amend(plan_file, "first")
+    lock.amend(plan_file, "first", outcome_data_seen=False)
     edit(plan_file, "threshold: 0.10", "threshold: 0.2")
-    lock.amend(plan_file, "second")
+    lock.amend(plan_file, "second", outcome_data_seen=True)
     return lock.lock_path(plan_file)
 
 
@@ -173,7 +174,7 @@ def test_reindenting_the_lock_does_not_break_it(plan_file):
 
 def test_freeze_from_the_command_line_exits_0_and_amend_exits_4_when_unchanged(plan_file, capsys):
     assert main(["freeze", str(plan_file)]) == Exit.OK
-    assert main(["amend", str(plan_file), "--reason", "none"]) == Exit.LOCK
+    assert main(["amend", str(plan_file), "--reason", "none", "--before-unblinding"]) == Exit.LOCK
     assert "nothing to amend" in capsys.readouterr().err
 
 

@@ -75,8 +75,8 @@ def test_a_run_starts_the_child_once_the_plan_names_its_data_before_the_checks(t
     events = []
     monkeypatch.setattr(renderer.Renderer, "start_for",
                         lambda self, path: events.append(("start the child for", path)))
-    checks = validate.validate
-    monkeypatch.setattr(validate, "validate",
+    checks = validate.check
+    monkeypatch.setattr(validate, "check",
                         lambda tree: events.append(("check the plan", None)) or checks(tree))
     bundle.run(plan_path, data=data, out=tmp_path / "out", unlocked=True, progress=False)
     assert events == [("start the child for", data), ("check the plan", None)]

@@ -30,7 +30,7 @@ def study(tmp_path_factory):
     plan, data = bundlekit.study(folder)
     assert main(["freeze", str(plan)]) == Exit.OK
     edit(plan, "confidence: 0.95", "confidence: 0.9")
-    assert main(["amend", str(plan), "--reason", REASON]) == Exit.OK
+    assert main(["amend", str(plan), "--reason", REASON, "--before-unblinding"]) == Exit.OK
     out = folder / "out" / "sealed"
     assert main(["run", str(plan), "--data", str(data), "--out", str(out)]) == Exit.OK
     return plan, data, out
@@ -185,7 +185,7 @@ def test_an_edited_amendment_log_exits_4(fresh, tmp_path, capsys):
     plan, data = fresh
     main(["freeze", str(plan)])
     edit(plan, "threshold: 0.10", "threshold: 0.2")
-    main(["amend", str(plan), "--reason", "agreed"])
+    main(["amend", str(plan), "--reason", "agreed", "--before-unblinding"])
     lock = plan.with_name(plan.name + ".lock.json")
     edit(lock, '"reason": "agreed"', '"reason": "agreed long ago"')
     assert run(plan, data, tmp_path / "out" / "b") == Exit.LOCK
