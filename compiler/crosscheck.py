@@ -122,6 +122,7 @@ def _stamp_and_lock(folder: Path, manifest: dict, results: dict):
     from .bundle import LOCK_STUB_FORMAT, lock_stub
     from .lock import LOCK_FORMAT, LockState, check_lock
     from .pipeline import Stamp
+    from .results import lock_record
 
     problems = []
     preregistered, rehearsal = results["preregistered"], results["rehearsal"]
@@ -163,8 +164,7 @@ def _stamp_and_lock(folder: Path, manifest: dict, results: dict):
         problems += [_fail(f"plan.lock.json: {p}", "plan.lock.json") for p in broken]
         return problems, "a broken lock", None
     state = LockState(folder / "plan.lock.json", sha256_hex(data), lock, data)
-    recorded = {"sha256": state.sha256, "frozen_at": state.frozen_at,
-                "amended_at": state.amended_at}
+    recorded = lock_record(state, sha256_hex((folder / "plan.yaml").read_bytes()))
     changed = differences(results["lock"], recorded, path="lock")
     changed += differences(results["amendments"], state.amendments, path="amendments")
     if changed:

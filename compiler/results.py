@@ -58,11 +58,11 @@ def build(analysed, *, stamp, plan_file_sha256: str, lock=None, environment: dic
         "decisions": decision_records(analysed.verdicts),
         "assumptions": assumption_records(analysed.assumptions),
         "amendments": lock.amendments if lock is not None else [],
-        "lock": None if lock is None else _lock(lock, plan_file_sha256),
+        "lock": None if lock is None else lock_record(lock, plan_file_sha256),
     }
 
 
-def _lock(lock, plan_file_sha256: str) -> dict:
+def lock_record(lock, plan_file_sha256: str) -> dict:
     """The lock the run matched. The run matched its canonical digest, so a plan file whose
     bytes are not the ones frozen differs in comments or layout only."""
     frozen = lock.frozen_file_sha256
