@@ -31,7 +31,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from . import synthesize
+from . import rehearsal_size, synthesize
 from .allowed import Allowed
 from .bound import BoundData, Sample, SampleFlow, Table
 from .plan import Analysis, Plan
@@ -54,7 +54,7 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
     some analysis without a usable sample.
     """
     rows = (plan.data.expected_rows or DEFAULT_ROWS) if rows is None else rows
-    _check_arguments(rows=rows, seed=seed, effect=effect)
+    _check_arguments(rows=rows, seed=seed, effect=effect, variables=len(plan.variables))
     plan_layout = synthesize.layout(plan, rows, seed)
     columns = synthesize.columns(plan, plan_layout, seed)
     made: set[str] = set()
@@ -137,11 +137,17 @@ def table_csv(plan: Plan, columns: dict[str, np.ndarray]) -> bytes:
     return out.getvalue().encode("utf-8")
 
 
-def _check_arguments(*, seed: int, rows: int | None = None, effect: float = 0.0) -> None:
+def _check_arguments(*, seed: int, rows: int | None = None, effect: float = 0.0,
+                     variables: int = 1) -> None:
     problems = []
     if rows is not None and rows < 1:
-        problems.append(Problem(f"--rows {rows}: a rehearsal needs at least one row",
-                                code="bad-rows"))
+        problems.append(Problem(f"--rows {rehearsal_size.shown(rows)}: a rehearsal needs at "
+                                "least one row", code="bad-rows"))
+    too_many = None if rows is None else rehearsal_size.too_many(rows, variables)
+    if too_many:
+        problems.append(Problem(f"--rows {rehearsal_size.shown(rows)}: {too_many}",
+                                hint="a rehearsal checks the plan, which a few thousand rows "
+                                     "do; give a smaller --rows", code="too-many-rows"))
     if seed < 0:
         problems.append(Problem(f"--seed {seed}: the seed must be 0 or more", code="bad-seed"))
     if not np.isfinite(effect):

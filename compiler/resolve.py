@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 
+from . import rehearsal_size
 from .columns import INTERCEPT
 from .load import Mapping, Node, Scalar, Sequence, Tree
 from .plan import (
@@ -173,8 +174,15 @@ def _data(ctx: Context, node: Mapping) -> DataSource:
         if variable is not None and variable.kind != "identifier":
             ctx.error(f"row_id `{variable.name}` is declared {variable.kind}; a row id must be "
                       "kind identifier", row_id.place, code="kind-mismatch")
+    expected = value(node, "expected_rows")
+    too_many = None if expected is None else rehearsal_size.too_many(expected, len(ctx.variables))
+    if too_many:
+        ctx.error(f"expected_rows: {too_many}", node.get("expected_rows").place,
+                  hint="rehearse with a smaller --rows; expected_rows is only the rehearsal's "
+                       "default size, so lower it or leave it out",
+                  code="too-many-rows")
     return DataSource(value(node, "path"), value(node, "format"), value(node, "row_id"),
-                      tuple(value(node, "missing", ["", "NA"])), value(node, "expected_rows"))
+                      tuple(value(node, "missing", ["", "NA"])), expected)
 
 
 def _population(ctx: Context, name: str, node: Mapping) -> Population:
