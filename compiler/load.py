@@ -375,6 +375,12 @@ def _convert(node, source: str, problems: _Problems) -> Node:
                          code="complex-key")
             continue
         key = key_node.value
+        if key in _NULL and not key_node.style:
+            problems.add(f"the key `{key}` is null in YAML, not a name" if key else
+                         "a key is missing before the colon", key_place,
+                         hint=f'quote it ("{key}") if it is a name' if key else None,
+                         code="null-key")
+            continue
         if key == "<<" and not key_node.style:
             problems.add("merge keys (`<<`) are not supported", key_place,
                          hint="write the keys out in full", code="merge-key")

@@ -48,7 +48,10 @@ class Context:
             return self.variables[name]
         hint = did_you_mean(name, self.variables)
         if hint is None and isinstance(name, str) and _CODE_LIKE & set(name):
-            hint = ("a term is a declared variable name or a mapping such as {log: VAR}, "
+            hint = ("a condition names one declared variable and compares it in its own key, "
+                    "such as {variable: age, at_least: 18}; nothing is evaluated"
+                    if use.startswith("condition of population") else
+                    "a term is a declared variable name or a mapping such as {log: VAR}, "
                     "{power: VAR, degree: 2} or {product: [A, B]}; nothing is evaluated")
         self.error(f"unknown variable `{_text(node)}` ({use})", node.place, hint=hint,
                    code="unknown-variable")
