@@ -79,7 +79,7 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
                 offset += batch.num_rows
         except pa.ArrowInvalid as error:
             if "CSV parse error" in str(error) or "straddl" in str(error):
-                raise read._ragged(plan, path, fmt, error, _batch_bytes()) from None
+                raise read_faults.ragged(path, fmt, error, _batch_bytes()) from None
             if "conversion error" in str(error) and not numbers_as_text:
                 raise NumbersAsText() from None
             raise

@@ -209,7 +209,7 @@ def _read_delimited(plan: Plan, path: Path, fmt: str):
         return _parse_delimited(plan, path, fmt, numbers_as_text=False)
     except pa.ArrowInvalid as error:
         if "CSV parse error" in str(error) or "straddl" in str(error):
-            raise _ragged(plan, path, fmt, error) from None
+            raise read_faults.ragged(path, fmt, error, BLOCK) from None
         if "conversion error" not in str(error):
             raise
     # a numeric column holds text: read the numeric columns as text to name every such value
@@ -348,44 +348,6 @@ def _present(plan: Plan, header: list[str]) -> list[str]:
                             "which one the plan means is unclear", column=n,
                             code="duplicate-column") for n in repeated], Exit.DATA_CONTRACT)
     return [n for n in declared if n in header]
-
-
-def _ragged(plan: Plan, path: Path, fmt: str, error: Exception, block: int = BLOCK) -> Stop:
-    """Name the line of the first record whose field count differs from the header's.
-
-    pyarrow's threaded reader does not know row numbers, and a serial one counts records, not
-    lines (blank lines and quoted line breaks shift them), so the line is found by Python's csv
-    module, which tracks physical lines.
-    """
-    if "straddl" in str(error):  # pyarrow: a line (or record) longer than its block
-        return read_faults.long_line(path, fmt, block)
-    delimiter = "\t" if fmt == "tsv" else ","
-    try:
-        found = _ragged_line(path, delimiter)
-    except csv.Error as reason:  # a record Python's csv module cannot take: say why
-        return _stop(f"cannot read {path} as {fmt}: {reason}", "data-unreadable")
-    first = str(error).strip().splitlines()[0]
-    return found or _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
-
-
-def _ragged_line(path: Path, delimiter: str) -> Stop | None:
-    """The problem naming the first record whose field count differs from the header's."""
-    with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
-        records = csv.reader(f, delimiter=delimiter)
-        header = next(records, [])
-        line = records.line_num + 1
-        for fields in records:
-            if fields and len(fields) != len(header):
-                excerpt = delimiter.join(fields)
-                excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
-                return Stop([Problem(
-                    f"{path}: line {line} has {len(fields)} fields where the header has "
-                    f"{len(header)}: {excerpt!r}",
-                    hint="a field holding the delimiter must be quoted", code="ragged-row",
-                    details={"line": line, "fields": len(fields), "expected": len(header)})],
-                    Exit.DATA_CONTRACT)
-            line = records.line_num + 1
-    return None
 
 
 # --- Parquet, xpt, dta -------------------------------------------------------------------

@@ -3,6 +3,7 @@ said so that the user can act on it (exit 3, the file named, and the line where 
 
 - an empty file, of any format (pandas' Stata reader says "unpack requires a buffer");
 - a text file in UTF-16 or UTF-32 (with a byte-order mark, or NUL bytes in its header);
+- a ragged row (a record whose field count differs from the header's), by its line;
 - a line longer than the parser's block (pyarrow: "straddling object straddles two block
   boundaries"): the first such line, by number and length;
 - a file whose identity changed while it was read (size, modification time, inode, device,
@@ -11,6 +12,7 @@ said so that the user can act on it (exit 3, the file named, and the line where 
 
 from __future__ import annotations
 
+import csv
 import os
 from pathlib import Path
 
@@ -96,3 +98,41 @@ def long_line(path: Path, fmt: str, block: int) -> Stop:
     return _stop(f"cannot read {path} as {fmt}: a record spans more than "
                  f"{size_words(block)} (a quoted field holding line breaks, or an unclosed "
                  "quote)", "line-too-long", hint="check the file's quotes")
+
+
+def ragged(path: Path, fmt: str, error: Exception, block: int) -> Stop:
+    """Name the line of the first record whose field count differs from the header's.
+
+    pyarrow's threaded reader does not know row numbers, and a serial one counts records, not
+    lines (blank lines and quoted line breaks shift them), so the line is found by Python's csv
+    module, which tracks physical lines.
+    """
+    if "straddl" in str(error):  # pyarrow: a line (or record) longer than its block
+        return long_line(path, fmt, block)
+    delimiter = "\t" if fmt == "tsv" else ","
+    try:
+        found = _ragged_line(path, delimiter)
+    except csv.Error as reason:  # a record Python's csv module cannot take: say why
+        return _stop(f"cannot read {path} as {fmt}: {reason}", "data-unreadable")
+    first = str(error).strip().splitlines()[0]
+    return found or _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
+
+
+def _ragged_line(path: Path, delimiter: str) -> Stop | None:
+    """The problem naming the first record whose field count differs from the header's."""
+    with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
+        records = csv.reader(f, delimiter=delimiter)
+        header = next(records, [])
+        line = records.line_num + 1
+        for fields in records:
+            if fields and len(fields) != len(header):
+                excerpt = delimiter.join(fields)
+                excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
+                return Stop([Problem(
+                    f"{path}: line {line} has {len(fields)} fields where the header has "
+                    f"{len(header)}: {excerpt!r}",
+                    hint="a field holding the delimiter must be quoted", code="ragged-row",
+                    details={"line": line, "fields": len(fields), "expected": len(header)})],
+                    Exit.DATA_CONTRACT)
+            line = records.line_num + 1
+    return None

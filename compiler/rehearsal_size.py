@@ -2,7 +2,7 @@
 
 The synthetic table is made whole in memory, and its canonical CSV (whose sha256 is the
 table's digest) is written as text, so a rehearsal costs roughly 230 bytes and 4 µs per
-value (1,000,000 rows of the demo's 13 variables: 3 GB and 56 s on a 2-core machine). It
+value (1,000,000 rows of the demo's 13 variables: 2.8 GiB and 56 s on a 2-core machine). It
 is a check of the plan, not of the data's size: :data:`MAX_VALUES` keeps it near 1 GB and
 a quarter of a minute. Plain Python, so `check` can refuse a ``data.expected_rows`` that no
 rehearsal could make, before numpy is loaded.
