@@ -145,7 +145,7 @@ def _check_arguments(*, seed: int, rows: int | None = None, effect: float = 0.0,
                                 "least one row", code="bad-rows"))
     too_many = None if rows is None else rehearsal_size.too_many(rows, variables)
     if too_many:
-        problems.append(Problem(f"--rows {rehearsal_size.shown(rows)}: {too_many}",
+        problems.append(Problem(f"--rows {too_many}",
                                 hint="a rehearsal checks the plan, which a few thousand rows "
                                      "do; give a smaller --rows", code="too-many-rows"))
     if seed < 0:
