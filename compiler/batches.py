@@ -17,7 +17,7 @@ from typing import Iterator
 
 import pyarrow as pa
 
-from . import read
+from . import read, read_faults
 from .bound import Table, Tally
 from .plan import Plan
 
@@ -78,8 +78,8 @@ def _delimited(plan, path, fmt, facts, numbers_as_text, hashing):
                 yield offset, _table(plan, facts, batch, offset, fmt)
                 offset += batch.num_rows
         except pa.ArrowInvalid as error:
-            if "CSV parse error" in str(error):
-                raise read._ragged(plan, path, fmt, error) from None
+            if "CSV parse error" in str(error) or "straddl" in str(error):
+                raise read_faults.ragged(path, fmt, error, _batch_bytes()) from None
             if "conversion error" in str(error) and not numbers_as_text:
                 raise NumbersAsText() from None
             raise
@@ -194,6 +194,8 @@ def _table(plan: Plan, facts: FileFacts, batch: pa.RecordBatch, offset: int,
     """One batch as a Table, converted exactly as read.read converts whole columns."""
     missing = None if fmt in ("csv", "tsv") else plan.data.missing
     columns, unparsed, codes = {}, {}, {}
+    read_faults.refuse_booleans(plan, {n: batch.schema.field(n).type for n in facts.present},
+                                Path(facts.path))
     for variable in plan.variables:
         if variable.name not in facts.present:
             continue

@@ -33,11 +33,11 @@ DEFAULT_REHEARSAL_ROWS = 500
 def run(plan_path, *, data=None, out=None, unlocked=False, stream=None, sign_key=None,
         progress=True):
     """The confirmatory run. Exit 4 unless the plan matches its lock (or ``unlocked``)."""
-    from . import lock, seal
+    from . import load, lock, seal
     from .renderer import Renderer
     from .pipeline import Stamp, analyse, compile_plan, data_path_for, named_data_path
 
-    plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
+    plan_bytes = load.plan_bytes(plan_path, missing_ok=True)  # compile_plan says why not
     with Renderer() as renderer:
         # the render child's imports take longer than the plan's checks and the lock's:
         # it starts as soon as the plan file has named its data (and is stopped on refusal)
@@ -60,13 +60,13 @@ def rehearse(plan_path, *, data=None, scramble=None, out=None, seed=0, rows=None
              effects=(), progress=True):
     """A rehearsal on synthetic data, or on real data with one column scrambled.
     ``effects`` are the `--effect` specs (compiler/effects.py), for synthetic data only."""
-    from . import seal
+    from . import load, seal
     from .effects import read_effects
     from .renderer import Renderer
     from .pipeline import Stamp, analyse, compile_plan, data_path_for
     from .problems import Exit, Problem, Stop
 
-    plan_bytes = Path(plan_path).read_bytes() if Path(plan_path).is_file() else b""
+    plan_bytes = load.plan_bytes(plan_path, missing_ok=True)  # compile_plan says why not
     plan = compile_plan(plan_path)
     if data is not None and scramble is None:
         raise Stop([Problem("rehearse --data needs --scramble VAR: a rehearsal on real, "

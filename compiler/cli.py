@@ -186,17 +186,62 @@ def main(argv: Sequence[str] | None = None) -> int:
         report = handler(args)
     except Stop as stop:
         report = Report(exit_code=stop.exit_code, problems=stop.problems)
-    except KeyboardInterrupt:
-        print("prespec: interrupted", file=sys.stderr)
-        return Exit.INTERNAL
+    except KeyboardInterrupt:  # Ctrl-C or SIGTERM: whatever was being written is removed
+        _say_quietly("prespec: interrupted (no bundle or lock was left half-written)")
+        return INTERRUPTED
+    except BrokenPipeError:  # a progress line to a closed stderr
+        return _closed_pipe(Exit.INTERNAL)
     except Exception as exc:  # an internal fault: one line unless --debug
         if args.debug:
             raise
-        print(f"prespec: internal error: {type(exc).__name__}: {exc} (rerun with --debug)",
-              file=sys.stderr)
+        _say_quietly(f"prespec: internal error: {type(exc).__name__}: {exc} "
+                     "(rerun with --debug)")
         return Exit.INTERNAL
-    _emit(report, args.json, args.command)
+    try:
+        _emit(report, args.json, args.command)
+        sys.stdout.flush()
+    except BrokenPipeError:  # the reader went away (`prespec check --explain | head`)
+        return _closed_pipe(report.exit_code)
     return int(report.exit_code)
+
+
+INTERRUPTED = 130  # 128 + SIGINT, as shells report a command ended by Ctrl-C
+
+
+def _say_quietly(line: str) -> None:
+    try:
+        print(line, file=sys.stderr)
+    except (BrokenPipeError, ValueError):  # stderr closed too: the exit code says it
+        pass
+
+
+def _closed_pipe(code: int) -> int:
+    """A closed stdout or stderr ends the command quietly with its own exit code: the rest
+    of the output goes nowhere (not even the interpreter's complaint at its final flush)."""
+    import os
+
+    devnull = os.open(os.devnull, os.O_WRONLY)
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            os.dup2(devnull, stream.fileno())
+        except (OSError, ValueError):
+            pass
+    os.close(devnull)
+    return int(code)
+
+
+def _interrupt_on_signals() -> None:
+    """Ctrl-C and SIGTERM raise KeyboardInterrupt, so the seal removes its temporary folder
+    and the command ends with exit 130. Set even when SIGINT is ignored: a shell script
+    starts its background commands so, and `kill -INT` must still stop a run before it
+    seals, not let it seal anyway."""
+    import signal
+
+    def interrupted(signum, frame):
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGINT, signal.default_int_handler)
+    signal.signal(signal.SIGTERM, interrupted)
 
 
 def command() -> None:
@@ -206,14 +251,22 @@ def command() -> None:
     by one, about 0.15 s on a run — has nothing left to do but be slow."""
     import os
 
+    _interrupt_on_signals()
     try:
         code = main()
     except SystemExit as stop:  # argparse's --help, --version and usage errors
         code = stop.code if isinstance(stop.code, int) else (0 if stop.code is None else 2)
         if stop.code is not None and not isinstance(stop.code, int):
-            print(stop.code, file=sys.stderr)
-    sys.stdout.flush()
-    sys.stderr.flush()
+            _say_quietly(str(stop.code))
+    except BrokenPipeError:  # --help or --version into a closed pipe
+        code = _closed_pipe(0)
+    except KeyboardInterrupt:  # between main's own guards
+        code = INTERRUPTED
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (BrokenPipeError, ValueError):
+            pass
     os._exit(code)
 
 

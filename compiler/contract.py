@@ -288,6 +288,7 @@ def _column_findings(plan: Plan, table: Table, variable: Variable, logged: bool)
                       "duplicate-id", None))
         found.append((absent, "identifier missing (row_id must be complete)", "missing-id",
                       None))
+        problems += _unicode_forms(name, values)
     problems += [_problem(plan, table, name, t, message, code, hint)
                  for t, message, code, hint in found if t.count]
     if variable.max_missing is not None:
@@ -372,6 +373,33 @@ def row_labels(plan: Plan, table: Table, rows) -> tuple[str, list[str]]:
     if ids is not None and all(ids[r] is not None for r in rows):
         return plan.data.row_id, [str(ids[r]) for r in rows]
     return "row number", [str(r + 1) for r in rows]
+
+
+def _unicode_forms(name: str, ids) -> list[Problem]:
+    """A warning when distinct ids are one text in two Unicode forms (é composed, or e and
+    a combining accent): they count as two ids, but print the same. Only the ids beyond
+    ASCII are normalised."""
+    import pyarrow.compute as pc
+
+    if not isinstance(ids, TextColumn):
+        return []
+    wide = pc.filter(ids.data, pc.invert(pc.fill_null(pc.string_is_ascii(ids.data), True)))
+    if not len(wide):
+        return []
+    distinct = pc.unique(wide)
+    forms = pc.utf8_normalize(distinct, form="NFC").to_pylist()
+    seen: dict[str, str] = {}
+    twins = [(seen.setdefault(form, raw), raw) for form, raw in zip(forms, distinct.to_pylist())
+             if seen.setdefault(form, raw) != raw]
+    if not twins:
+        return []
+    first, second = twins[0]
+    spelt = " and ".join(" ".join(f"U+{ord(c):04X}" for c in t) for t in (first, second))
+    return [Problem(f"{len(twins)} identifier value(s) differ from another only in Unicode "
+                    f"form, e.g. {first!r} and {second!r} ({spelt}): they count as two ids "
+                    "but print the same", column=name, severity="warning",
+                    hint="write every id in one Unicode form (NFC) before the run",
+                    code="id-unicode-forms", details={"pairs": [list(t) for t in twins[:20]]})]
 
 
 def _problem(plan: Plan, table: Table, column: str, found: Tally, message: str, code: str,

@@ -40,18 +40,14 @@ def _listed(items: list[str]) -> str:
     return "".join(f"\n  {item}" for item in [*shown, *more])
 
 
-def _no_constant(name: str):
-    raise ValueError(f"{name} is not a JSON number")
-
-
 def read_json(path: Path) -> tuple[object, str | None]:
-    """The parsed JSON of ``path``, or why it is not JSON (NaN and Infinity refused)."""
+    """The parsed JSON of a bundle file, or why it is not JSON prespec wrote (files.parse_json)."""
+    from .files import MIB, parse_json, read_regular
+
     try:
-        return json.loads(path.read_bytes().decode("utf-8"), parse_constant=_no_constant), None
-    except RecursionError:
-        return None, "it is not JSON that can be read (nested too deeply)"
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        return None, f"it is not JSON ({exc})"
+        return parse_json(read_regular(path, 64 * MIB))
+    except OSError as exc:
+        return None, f"it cannot be read ({exc.strerror or exc})"
 
 
 def schema_errors(document) -> list[str]:

@@ -34,6 +34,7 @@ from yaml.reader import Reader
 from yaml.resolver import BaseResolver
 from yaml.scanner import Scanner
 
+from .files import Refused, read_regular
 from .problems import Exit, Place, Problem, Stop
 
 MAX_BYTES = 1024 * 1024
@@ -225,17 +226,31 @@ def _place(source: str, mark) -> Place:
     return Place(source, mark.line + 1, mark.column + 1)
 
 
+def plan_bytes(path: str | Path, missing_ok: bool = False) -> bytes:
+    """The plan file's bytes, read as the loader reads them (a regular file of at most
+    MAX_BYTES); with ``missing_ok``, b"" for a file the loader will refuse with its reason."""
+    try:
+        return _read_bytes(str(path))
+    except Stop:
+        if missing_ok:
+            return b""
+        raise
+
+
 def _read_bytes(source: str) -> bytes:
     try:
-        with open(source, "rb") as handle:
-            data = handle.read(MAX_BYTES + 1)
+        data = read_regular(source, MAX_BYTES)
+    except Refused as exc:
+        if "larger than" in exc.strerror:
+            raise _stop(source, f"the plan file is larger than {MAX_BYTES // 1024} KiB; "
+                                "a plan is a short text file", code="too-large") from None
+        raise Stop([Problem(f"{source}: cannot read the plan: {exc.strerror}",
+                            hint="give the path of the plan file itself", code="unreadable")],
+                   Exit.PLAN_INVALID) from None
     except OSError as exc:
         reason = exc.strerror or type(exc).__name__
         raise Stop([Problem(f"{source}: cannot read the plan: {reason}", code="unreadable")],
                    Exit.PLAN_INVALID) from None
-    if len(data) > MAX_BYTES:
-        raise _stop(source, f"the plan file is larger than {MAX_BYTES // 1024} KiB; "
-                            "a plan is a short text file", code="too-large")
     return data
 
 
@@ -360,6 +375,12 @@ def _convert(node, source: str, problems: _Problems) -> Node:
                          code="complex-key")
             continue
         key = key_node.value
+        if key in _NULL and not key_node.style:
+            problems.add(f"the key `{key}` is null in YAML, not a name" if key else
+                         "a key is missing before the colon", key_place,
+                         hint=f'quote it ("{key}") if it is a name' if key else None,
+                         code="null-key")
+            continue
         if key == "<<" and not key_node.style:
             problems.add("merge keys (`<<`) are not supported", key_place,
                          hint="write the keys out in full", code="merge-key")

@@ -23,6 +23,7 @@ to read in review; only its parsed content counts.
 
 from __future__ import annotations
 
+import contextlib
 import json
 import os
 from dataclasses import dataclass
@@ -31,10 +32,13 @@ from pathlib import Path
 
 from . import __version__
 from .canonical import canonical_bytes, differences, digest, plan_digest, plan_form, plan_key, sha256_hex
+from .files import MIB, read_regular
+from .load import plan_bytes
 from .problems import Exit, Problem, Stop
 
 LOCK_FORMAT = "prespec-lock/1"
 TOOL = f"prespec {__version__}"
+MAX_LOCK_BYTES = 64 * MIB  # the canonical plan (a plan is at most 1 MiB) and its amendments
 
 
 @dataclass(frozen=True)
@@ -113,7 +117,7 @@ def freeze(plan_path: str | Path):
                                 "only" if layout else "")],
                       payload={**_payload(target, state.document, already=True),
                                "comments_or_layout_differ": layout})
-    file_sha = sha256_hex(Path(plan_path).read_bytes())
+    file_sha = sha256_hex(plan_bytes(plan_path))
     record = {"sha256": sha, "file_sha256": file_sha, "language": plan.language,
               "tool": TOOL, "time": now_utc()}
     document = {"format": LOCK_FORMAT, "freeze": record, "amendments": [], "head": digest(record),
@@ -157,7 +161,7 @@ def amend(plan_path: str | Path, reason: str, *, outcome_data_seen: bool | None 
     document = state.document
     log = document["amendments"]
     previous_entry = log[-1] if log else document["freeze"]
-    file_sha = sha256_hex(Path(plan_path).read_bytes())
+    file_sha = sha256_hex(plan_bytes(plan_path))
     entry = {"previous": state.plan_sha256, "new": sha, "reason": reason.strip(),
              "outcome_data_seen": bool(outcome_data_seen), "time": now_utc(),
              "file_sha256": file_sha, "tool": TOOL,
@@ -198,7 +202,7 @@ def read_lock(target: str | Path) -> LockState:
     """Read a lock and check it hangs together: format, plan digest, the amendment chain."""
     target = Path(target)
     try:
-        data = target.read_bytes()
+        data = read_regular(target, MAX_LOCK_BYTES)
     except OSError as exc:  # a folder where the lock should be, a lock not readable
         raise _broken(target, f"it cannot be read ({exc.strerror or exc})") from None
     try:
@@ -255,9 +259,25 @@ def check_lock(document) -> list[str]:
                             " (an amendment is missing)")
         if digest(form) != head:
             problems.append("its canonical_plan does not match its plan sha256 (it was edited)")
+        problems += _bad_times(freeze_record, log)
         return problems
     except (KeyError, TypeError, AttributeError) as exc:
         return [f"it lacks a part every lock has ({exc})"]
+
+
+def _bad_times(freeze_record: dict, log: list) -> list[str]:
+    """The freeze and amendment times that are not UTC times as the lock writes them: the
+    report's dates are made from them, so a forged one is a broken lock, not a crash."""
+    problems = []
+    for name, record in [("the freeze record", freeze_record),
+                         *((f"amendment {n}", e) for n, e in enumerate(log, start=1))]:
+        moment = record.get("time")
+        try:
+            epoch_of(moment)
+        except (TypeError, ValueError, OverflowError):
+            problems.append(f"{name}'s time {json.dumps(moment)[:40]} is not a UTC time "
+                            "written as YYYY-MM-DDTHH:MM:SSZ")
+    return problems
 
 
 def _changed_problem(plan_path, state: LockState, plan, headline: str,
@@ -292,8 +312,15 @@ def _write(target: Path, document: dict) -> None:
     canonical_bytes(document)  # refuses NaN before anything is written
     text = json.dumps(document, indent=2, sort_keys=True, ensure_ascii=False) + "\n"
     temporary = target.with_name(f".{target.name}.tmp-{os.getpid()}")
-    with open(temporary, "w", encoding="utf-8") as handle:
-        handle.write(text)
-        handle.flush()
-        os.fsync(handle.fileno())
-    os.replace(temporary, target)
+    try:
+        with open(temporary, "w", encoding="utf-8") as handle:
+            handle.write(text)
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(temporary, target)
+    except OSError as exc:  # a folder not writable, a full disk: say so, leave nothing
+        with contextlib.suppress(OSError):
+            os.unlink(temporary)
+        raise Stop([Problem(f"{target}: cannot write the lock: {exc.strerror or exc}",
+                            hint="freeze the plan in a folder you may write to",
+                            code="lock-unwritable")], Exit.PLAN_INVALID) from None

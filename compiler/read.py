@@ -30,6 +30,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from . import read_faults
 from .bound import EXAMPLES, CodedColumn, Table, Tally, TextColumn
 from .plan import Plan
 from .problems import Exit, Problem, Stop
@@ -37,6 +38,7 @@ from .problems import Exit, Problem, Stop
 FORMATS = {".csv": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet", ".pq": "parquet",
            ".xpt": "xpt", ".dta": "dta"}
 BLOCK = 4 << 20  # bytes pyarrow parses per block; also the hashing step
+HEADER_LIMIT = 16 << 20  # bytes the header line may take
 GROUP = 16  # parsed blocks converted to numpy at a time (see _released)
 HINTS = {  # a library's message → what the user can do about it
     "invalid UTF8": "text columns must be UTF-8: save the file with UTF-8 encoding",
@@ -56,6 +58,7 @@ def read(plan: Plan, path: str | Path) -> Table:
                     f"data file {path} is {what}: give the path of the data file itself",
                     "data-file-missing")
     fmt = data_format(plan, path)
+    read_faults.refuse_empty(path, path.stat().st_size, fmt)
     reader = {"csv": _read_delimited, "tsv": _read_delimited, "parquet": _read_parquet,
               "xpt": _read_pandas, "dta": _read_pandas}[fmt]
     with unreadable_as_stop(path, fmt):
@@ -103,6 +106,7 @@ def _unreadable(path: Path, fmt: str, complaint: str) -> Stop:
 def _converted(plan: Plan, path: Path, fmt: str, header: list[str], arrays: dict, rows: int,
                digest: str, size: int) -> Table:
     """The reader's arrow columns as the Table of the dictionary's kinds."""
+    read_faults.refuse_booleans(plan, {n: a.type for n, a in arrays.items()}, path)
     declared = {v.name for v in plan.variables}
     columns: dict[str, np.ndarray] = {}
     unparsed: dict[str, Tally] = {}
@@ -169,7 +173,7 @@ class _HashingReader:
         self.size += len(chunk)
         return chunk
 
-    def peek_record(self, limit: int = 16 << 20) -> bytes:
+    def peek_record(self, limit: int = HEADER_LIMIT) -> bytes:
         """The start of the file up to at least one line end (or all of a short file)."""
         while b"\n" not in self._replay and len(self._replay) < limit:
             chunk = self._pull(1 << 16)
@@ -204,8 +208,8 @@ def _read_delimited(plan: Plan, path: Path, fmt: str):
     try:
         return _parse_delimited(plan, path, fmt, numbers_as_text=False)
     except pa.ArrowInvalid as error:
-        if "CSV parse error" in str(error):
-            raise _ragged(plan, path, fmt, error) from None
+        if "CSV parse error" in str(error) or "straddl" in str(error):
+            raise read_faults.ragged(path, fmt, error, BLOCK) from None
         if "conversion error" not in str(error):
             raise
     # a numeric column holds text: read the numeric columns as text to name every such value
@@ -221,21 +225,25 @@ def _parse_delimited(plan: Plan, path: Path, fmt: str, *, numbers_as_text: bool)
     delimiter = "\t" if fmt == "tsv" else ","
     before = _identity(path)
     with path.open("rb") as raw:
-        header = _header(_HashingReader(raw, hashing=False).peek_record(), delimiter, path)
+        prefix = _HashingReader(raw, hashing=False).peek_record()
+    header = _header(prefix, delimiter, path)
     present = _present(plan, header)
+    source = str(path)
+    if len(prefix) == before[0] and not prefix.rstrip(b"\r\n").count(b"\n"):
+        # the header alone, with or without its line end: no rows, said as plainly either way
+        if not present:
+            return header, {}, 0, hashlib.sha256(prefix).hexdigest(), before[0]
+        source = pa.BufferReader(prefix.rstrip(b"\r\n") + b"\n")
     with _Digest(path) as digest:
-        table = pacsv.read_csv(str(path), memory_pool=_parse_pool(),
+        table = pacsv.read_csv(source, memory_pool=_parse_pool(),
                                **csv_options(plan, present, delimiter, BLOCK, numbers_as_text))
     if _identity(path) != before:
-        raise _stop(f"data file {path} changed while it was being read; read it again once "
-                    "nothing is writing to it", "data-changed")
+        raise read_faults.changed(path)
     arrays = {name: table.column(name) for name in present}
     return header, arrays, table.num_rows, digest.hexdigest, before[0]
 
 
-def _identity(path: Path) -> tuple[int, int, int, int]:
-    info = path.stat()
-    return info.st_size, info.st_mtime_ns, info.st_ino, info.st_dev
+_identity = read_faults.identity  # size, mtime, ctime, inode, device
 
 
 class _Digest:
@@ -297,6 +305,9 @@ def _header(prefix: bytes, delimiter: str, path: Path) -> list[str]:
     lone CR ends a line too), so both see the same header."""
     if not prefix.strip():
         raise _stop(f"data file {path} is empty: there is no header row", "data-empty")
+    read_faults.refuse_wide_encoding(prefix, path)
+    if b"\n" not in prefix and b"\r" not in prefix and len(prefix) >= HEADER_LIMIT:
+        raise read_faults.long_line(path, "delimited text", HEADER_LIMIT)
     text = prefix.decode("utf-8-sig", errors="replace")
     try:
         return next(csv.reader(io.StringIO(text, newline=""), delimiter=delimiter), [])
@@ -337,42 +348,6 @@ def _present(plan: Plan, header: list[str]) -> list[str]:
                             "which one the plan means is unclear", column=n,
                             code="duplicate-column") for n in repeated], Exit.DATA_CONTRACT)
     return [n for n in declared if n in header]
-
-
-def _ragged(plan: Plan, path: Path, fmt: str, error: Exception) -> Stop:
-    """Name the line of the first record whose field count differs from the header's.
-
-    pyarrow's threaded reader does not know row numbers, and a serial one counts records, not
-    lines (blank lines and quoted line breaks shift them), so the line is found by Python's csv
-    module, which tracks physical lines.
-    """
-    delimiter = "\t" if fmt == "tsv" else ","
-    try:
-        found = _ragged_line(path, delimiter)
-    except csv.Error as reason:  # a record Python's csv module cannot take: say why
-        return _stop(f"cannot read {path} as {fmt}: {reason}", "data-unreadable")
-    first = str(error).strip().splitlines()[0]
-    return found or _stop(f"cannot read {path} as {fmt}: {first}", "data-unreadable")
-
-
-def _ragged_line(path: Path, delimiter: str) -> Stop | None:
-    """The problem naming the first record whose field count differs from the header's."""
-    with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
-        records = csv.reader(f, delimiter=delimiter)
-        header = next(records, [])
-        line = records.line_num + 1
-        for fields in records:
-            if fields and len(fields) != len(header):
-                excerpt = delimiter.join(fields)
-                excerpt = excerpt if len(excerpt) <= 60 else excerpt[:57] + "..."
-                return Stop([Problem(
-                    f"{path}: line {line} has {len(fields)} fields where the header has "
-                    f"{len(header)}: {excerpt!r}",
-                    hint="a field holding the delimiter must be quoted", code="ragged-row",
-                    details={"line": line, "fields": len(fields), "expected": len(header)})],
-                    Exit.DATA_CONTRACT)
-            line = records.line_num + 1
-    return None
 
 
 # --- Parquet, xpt, dta -------------------------------------------------------------------

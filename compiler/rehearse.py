@@ -32,7 +32,7 @@ from dataclasses import replace
 
 import numpy as np
 
-from . import rehearse_clusters, synthesize
+from . import rehearsal_size, rehearse_clusters, synthesize
 from .allowed import Allowed
 from .effects import PlantedEffect, coefficients
 from .bound import BoundData, Sample, SampleFlow, Table
@@ -56,7 +56,7 @@ def synthetic_table(plan: Plan, *, rows: int | None = None, seed: int,
     some analysis without a usable sample.
     """
     rows = (plan.data.expected_rows or DEFAULT_ROWS) if rows is None else rows
-    _check_arguments(rows=rows, seed=seed)
+    _check_arguments(rows=rows, seed=seed, variables=len(plan.variables))
     plan_layout = synthesize.layout(plan, rows, seed)
     columns = synthesize.columns(plan, plan_layout, seed)
     rehearse_clusters.apply(plan, plan_layout, columns, seed)
@@ -140,11 +140,16 @@ def table_csv(plan: Plan, columns: dict[str, np.ndarray]) -> bytes:
     return out.getvalue().encode("utf-8")
 
 
-def _check_arguments(*, seed: int, rows: int | None = None) -> None:
+def _check_arguments(*, seed: int, rows: int | None = None, variables: int = 1) -> None:
     problems = []
     if rows is not None and rows < 1:
-        problems.append(Problem(f"--rows {rows}: a rehearsal needs at least one row",
-                                code="bad-rows"))
+        problems.append(Problem(f"--rows {rehearsal_size.shown(rows)}: a rehearsal needs at "
+                                "least one row", code="bad-rows"))
+    too_many = None if rows is None else rehearsal_size.too_many(rows, variables)
+    if too_many:
+        problems.append(Problem(f"--rows {too_many}",
+                                hint="a rehearsal checks the plan, which a few thousand rows "
+                                     "do; give a smaller --rows", code="too-many-rows"))
     if seed < 0:
         problems.append(Problem(f"--seed {seed}: the seed must be 0 or more", code="bad-seed"))
     if problems:

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 
+from . import rehearsal_size
 from .columns import INTERCEPT
 from .load import Mapping, Node, Scalar, Sequence, Tree
 from .plan import (
@@ -51,7 +52,10 @@ class Context:
             return None  # declared, but its entry was reported by the schema check
         hint = did_you_mean(name, self.variables)
         if hint is None and isinstance(name, str) and _CODE_LIKE & set(name):
-            hint = ("a term is a declared variable name or a mapping such as {log: VAR}, "
+            hint = ("a condition names one declared variable and compares it in its own key, "
+                    "such as {variable: age, at_least: 18}; nothing is evaluated"
+                    if use.startswith("condition of population") else
+                    "a term is a declared variable name or a mapping such as {log: VAR}, "
                     "{power: VAR, degree: 2} or {product: [A, B]}; nothing is evaluated")
         self.error(f"unknown variable `{_text(node)}` ({use})", node.place, hint=hint,
                    code="unknown-variable")
@@ -188,8 +192,15 @@ def _data(ctx: Context, node: Mapping) -> DataSource:
         if variable is not None and variable.kind != "identifier":
             ctx.error(f"row_id `{variable.name}` is declared {variable.kind}; a row id must be "
                       "kind identifier", row_id.place, code="kind-mismatch")
+    expected = value(node, "expected_rows")
+    too_many = None if expected is None else rehearsal_size.too_many(expected, len(ctx.variables))
+    if too_many:
+        ctx.error(f"expected_rows: {too_many}", node.get("expected_rows").place,
+                  hint="rehearse with a smaller --rows; expected_rows is only the rehearsal's "
+                       "default size, so lower it or leave it out",
+                  code="too-many-rows")
     return DataSource(value(node, "path"), value(node, "format"), value(node, "row_id"),
-                      tuple(value(node, "missing", ["", "NA"])), value(node, "expected_rows"))
+                      tuple(value(node, "missing", ["", "NA"])), expected)
 
 
 def _population(ctx: Context, name: str, node: Mapping) -> Population:

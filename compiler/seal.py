@@ -26,20 +26,25 @@ the run at its most delicate moment. It is read here only.
 
 from __future__ import annotations
 
+import contextlib
 import os
 import re
 import secrets
 import shutil
+import signal
+import threading
 import time
 from pathlib import Path
 
 from .canonical import canonical_bytes, digest, sha256_hex
+from .files import KIB, read_regular
 from .problems import Exit, Problem, Stop
 
 MANIFEST = "manifest.json"
 SIGNATURE = "manifest.sig"
 MANIFEST_FORMAT = "prespec-manifest/1"
 PAUSE_HOOK = "PRESPEC_TEST_PAUSE_BEFORE_SEAL"
+KEY_BYTES = 64 * KIB  # a PEM key file is a few hundred bytes
 
 
 def refuse_existing(target: Path) -> None:
@@ -98,7 +103,7 @@ def load_signing_key(path: str | Path):
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 
     try:
-        key = serialization.load_pem_private_key(Path(path).read_bytes(), password=None)
+        key = serialization.load_pem_private_key(read_regular(path, KEY_BYTES), password=None)
     except (OSError, ValueError, TypeError) as exc:
         raise Stop([Problem(f"{path}: cannot read the signing key: {exc}",
                             hint="give an unencrypted Ed25519 private key in PEM form, e.g. "
@@ -167,16 +172,35 @@ def seal(target: Path, files: dict[str, bytes], about: dict, *, run_at: str,
         pause = os.environ.get(PAUSE_HOOK)
         if pause:
             time.sleep(float(pause))
-        refuse_existing(target)  # someone may have written it while we worked
-        os.rename(temporary, target)
+        with _signals_held() as interrupted:
+            refuse_existing(target)  # someone may have written it while we worked
+            os.rename(temporary, target)
+            _fsync_folder(target.parent)
+            if interrupted():  # Ctrl-C during the rename: the run was stopped, so no bundle
+                shutil.rmtree(target, ignore_errors=True)
     except OSError as exc:  # a full disk, say: nothing of the bundle is left behind
         shutil.rmtree(temporary, ignore_errors=True)
         _unwritable(target, exc.strerror or str(exc))
-    except BaseException:
+    except BaseException:  # an interrupt (KeyboardInterrupt) or a fault: nothing left
         shutil.rmtree(temporary, ignore_errors=True)
         raise
-    _fsync_folder(target.parent)
     return manifest
+
+
+@contextlib.contextmanager
+def _signals_held():
+    """Hold Ctrl-C and SIGTERM while the bundle is renamed into place; yields a function
+    that says whether one arrived meanwhile (it is delivered, as KeyboardInterrupt, on
+    leaving). So an interrupted run never leaves a bundle, nor a finished run lose one."""
+    held = {signal.SIGINT, signal.SIGTERM}
+    if threading.current_thread() is not threading.main_thread():
+        yield lambda: False
+        return
+    before = signal.pthread_sigmask(signal.SIG_BLOCK, held)
+    try:
+        yield lambda: bool(held & signal.sigpending())
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, before)
 
 
 def _write(path: Path, data: bytes) -> None:
@@ -196,8 +220,9 @@ def _fsync_folder(folder: Path) -> None:
 
 
 def _remove_stale(target: Path) -> None:
-    """Remove temporary folders of this bundle left by runs that died before renaming."""
-    pattern = re.compile(rf"\.{re.escape(target.name)}\.tmp-(\d+)-[0-9a-f]+\Z")
+    """Remove the temporary bundle folders, of any bundle name, that runs which died before
+    renaming left in the target's parent (their process is gone)."""
+    pattern = re.compile(r"\..+\.tmp-(\d+)-[0-9a-f]{8}\Z", re.DOTALL)
     for entry in target.parent.iterdir():
         found = pattern.match(entry.name)
         if found and entry.is_dir() and not _alive(int(found.group(1))):

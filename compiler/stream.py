@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import contract, population
+from . import contract, population, read_faults
 from .batches import FileFacts, NumbersAsText, batch_tables
 from .bound import BoundData, FlowStep, Sample, SampleFlow, Table, Tally
 from .plan import Analysis, Plan
@@ -51,6 +51,8 @@ def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
     from .qr import one_blas_thread
 
     path = Path(data_path)
+    before = read_faults.identity(path)
+    read_faults.refuse_empty(path, before[0], fmt)
     with one_blas_thread(path.stat().st_size):  # every row is at least a byte
         # the pass sums moments and decomposes beside the contract's checks, so values the
         # contract then refuses (ages of 1e200) may overflow there first: quietly, since the
@@ -60,6 +62,8 @@ def read_bind_fit(plan: Plan, data_path: str | Path, fmt: str, progress=None):
         fits = tuple(fit_streamed(plan, a, _design_passes(plan, a, path, fmt, kept[a.id]),
                                   progress, firsts.get(a.id))
                      for a in plan.analyses)
+    if read_faults.identity(path) != before:  # the passes read it again: all the same bytes
+        raise read_faults.changed(path)
     if progress is not None:
         progress.done()
     return bound, fits, summaries

@@ -20,13 +20,18 @@ that differs is named by its path in the results (a bounded list).
 
 from __future__ import annotations
 
+import hashlib
 import json
 import os
 from pathlib import Path
 
 from .canonical import canonical_bytes, differences, sha256_hex
+from .files import KIB, MIB, parse_json, read_regular, regular_size
 from .problems import Exit, Problem, Stop
 
+MAX_MANIFEST_BYTES = 16 * MIB  # a manifest lists a handful of files
+MAX_KEY_BYTES = 64 * KIB  # a PEM public key is about 100 bytes
+MAX_SIGNATURE_BYTES = 4 * KIB  # an Ed25519 signature is 64
 MAX_DIFFERENCES = 25  # printed
 MAX_DIFFERENCES_JSON = 500  # in --json details
 # What an auditor reads first when a re-run differs: the inputs, then the verdicts.
@@ -98,11 +103,13 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
         return [_fail(f"{folder}: not a bundle folder (it does not exist or is not a "
                       "folder)")], [], None
     try:
-        raw = (folder / MANIFEST).read_bytes()
-        manifest = json.loads(raw.decode("utf-8"))
-    except (OSError, UnicodeDecodeError, ValueError) as exc:
-        return [_fail(f"{MANIFEST}: unreadable ({type(exc).__name__}: {exc})",
+        raw = read_regular(folder / MANIFEST, MAX_MANIFEST_BYTES)
+    except OSError as exc:
+        return [_fail(f"{MANIFEST}: cannot be read: {exc.strerror or exc}",
                       file=MANIFEST)], [], None
+    manifest, why = parse_json(raw)
+    if why:
+        return [_fail(f"{MANIFEST}: unreadable: {why}", file=MANIFEST)], [], None
     malformed = _malformed(manifest)
     if malformed:
         return [_fail(f"{MANIFEST}: not a bundle manifest: {malformed}",
@@ -123,10 +130,15 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
             said = "a symbolic link" if path.is_symlink() else "missing from the bundle"
             problems.append(_fail(f"{name}: {said}", file=name))
             continue
-        data = path.read_bytes()
-        if len(data) != entry.get("size") or sha256_hex(data) != entry.get("sha256"):
-            problems.append(_fail(f"{name}: does not match the manifest (size {len(data)}, "
-                                  f"sha256 {sha256_hex(data)[:12]}; the manifest says size "
+        try:
+            size, sha = _size_and_digest(path, entry["size"])
+        except OSError as exc:  # a file not readable, or swapped for a FIFO meanwhile
+            problems.append(_fail(f"{name}: cannot be read: {exc.strerror or exc}", file=name))
+            continue
+        if size != entry.get("size") or sha != entry.get("sha256"):
+            shown = f"sha256 {sha[:12]}" if sha else "not hashed"
+            problems.append(_fail(f"{name}: does not match the manifest (size {size}, "
+                                  f"{shown}; the manifest says size "
                                   f"{entry.get('size')}, sha256 {str(entry.get('sha256'))[:12]})",
                                   file=name))
     problems += [_fail(f"{name}: missing: every bundle holds it, and the manifest does not "
@@ -183,6 +195,20 @@ def _modes(folder: Path, names: list[str]) -> tuple[list[Problem], list[str]]:
     return problems, owner
 
 
+def _size_and_digest(path: Path, expected_size: int) -> tuple[int, str]:
+    """A bundle file's size and, when the size is the manifest's, its sha256, read a block
+    at a time (a file swapped for a huge one is not read into memory)."""
+    size = regular_size(path)
+    if size != expected_size:
+        return size, ""
+    digest = hashlib.sha256()
+    with open(path, "rb", buffering=0) as handle:
+        while block := handle.read(1 << 20):
+            digest.update(block)
+            size -= len(block)
+    return expected_size - size, digest.hexdigest()
+
+
 def _malformed(manifest) -> str | None:
     """What makes a parsed manifest unusable as one, or None: the checks below read these
     fields by these types (its digest and canonical bytes are checked after)."""
@@ -210,19 +236,31 @@ def _entries(folder: Path):
     """(relative path, what it is) of everything in the folder but sub-folders that hold
     something: a sealed bundle holds regular files only, so a link, an empty folder or any
     other kind of entry is named. Links are not followed."""
-    for root, folders, files in os.walk(folder):
+    unreadable: list[OSError] = []
+    for root, folders, files in os.walk(folder, onerror=unreadable.append):
         here = Path(root)
         for name in folders:
             path = here / name
             if path.is_symlink():
                 yield path.relative_to(folder).as_posix(), "a symbolic link to a folder"
-            elif not any(path.iterdir()):
+                continue
+            try:
+                empty = not any(path.iterdir())
+            except OSError as exc:
+                yield path.relative_to(folder).as_posix(), \
+                    f"an added folder that cannot be read: {exc.strerror or exc}"
+                continue
+            if empty:
                 yield path.relative_to(folder).as_posix(), "an added, empty folder"
         for name in files:
             path = here / name
             what = ("a symbolic link" if path.is_symlink() else
                     "an added file" if path.is_file() else "not a regular file")
             yield path.relative_to(folder).as_posix(), what
+    for exc in unreadable:  # the bundle folder itself, or a folder that vanished meanwhile
+        if exc.filename and Path(exc.filename) != folder:
+            continue  # named above, as a folder that cannot be read
+        yield ".", f"the bundle folder cannot be listed: {exc.strerror or exc}"
 
 
 def _cross_check(manifest: dict, listed: dict) -> list[Problem]:
@@ -245,7 +283,7 @@ def load_public_key(key):
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PublicKey
 
     try:
-        public = serialization.load_pem_public_key(Path(key).read_bytes())
+        public = serialization.load_pem_public_key(read_regular(key, MAX_KEY_BYTES))
     except (OSError, ValueError, TypeError) as exc:
         raise Stop([Problem(f"{key}: cannot read the public key: {exc}", code="bad-key")],
                    Exit.PLAN_INVALID) from None
@@ -272,7 +310,10 @@ def _check_signature(folder: Path, raw: bytes, signature: dict, key, public) -> 
                           "cannot be checked from the bundle alone (give --key PUB)",
                           file=MANIFEST)]
         embedded = None  # an older declaration: the given key checks the signature
-    sig = (folder / SIGNATURE).read_bytes()
+    try:
+        sig = read_regular(folder / SIGNATURE, MAX_SIGNATURE_BYTES)
+    except OSError as exc:
+        return [_fail(f"{SIGNATURE}: cannot be read: {exc.strerror or exc}", file=SIGNATURE)]
     if embedded is not None:
         try:
             Ed25519PublicKey.from_public_bytes(embedded).verify(sig, raw)
@@ -316,6 +357,30 @@ def _declared_key(signature: dict):
 # verify --data
 
 
+def _unusable_results(old) -> str | None:
+    """Why a parsed results.json cannot say how the bundle was run, or None: the re-run
+    reads these fields by these types."""
+    if not isinstance(old, dict):
+        return "it is not a JSON object"
+    for name in ("preregistered", "rehearsal"):
+        if not isinstance(old.get(name), bool):
+            return f"`{name}` is missing or not true/false"
+    if not isinstance(old.get("rehearsal_note"), (str, type(None))):
+        return "`rehearsal_note` is not text"
+    settings = old.get("rehearsal_settings")
+    if settings is None:
+        return "a rehearsal without its `rehearsal_settings`" if old["rehearsal"] else None
+    if not isinstance(settings, dict) or settings.get("source") not in ("synthetic",
+                                                                          "scrambled"):
+        return "`rehearsal_settings` is not a synthetic or scrambled rehearsal's settings"
+    wanted = {"seed": (int,), "rows": (int, type(None)), "effect": (int, float, type(None)),
+              "scramble": (str, type(None))}
+    for name, kinds in wanted.items():
+        if not isinstance(settings.get(name), kinds) or isinstance(settings.get(name), bool):
+            return f"`rehearsal_settings.{name}` is missing or of the wrong type"
+    return None
+
+
 def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
     """Run the bundled plan on ``data_path`` as the bundle was run; compare results bytes."""
     from .bundle import rehearsal_table, results_document
@@ -324,11 +389,13 @@ def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
     from .problems import Stop
     from .results import to_bytes
 
-    old_bytes = (folder / "results.json").read_bytes()
-    old = json.loads(old_bytes)
+    old_bytes = (folder / "results.json").read_bytes()  # checked against the manifest
+    old, why = parse_json(old_bytes)
+    why = why or _unusable_results(old)
+    if why:
+        return [_fail(f"results.json: the bundle cannot be re-run: {why}", code="rerun-failed",
+                      file="results.json")], []
     plan_path = folder / "plan.yaml"
-    plan = compile_plan(plan_path)
-    state = read_lock(folder / "plan.lock.json") if old["preregistered"] else None
     stamp = Stamp(preregistered=old["preregistered"], rehearsal=old["rehearsal"],
                   note=old["rehearsal_note"])
     settings = old.get("rehearsal_settings")
@@ -336,7 +403,9 @@ def rerun(folder: Path, data_path: Path) -> tuple[list[Problem], list[str]]:
     if settings and settings["source"] == "synthetic":
         notes.append(f"a synthetic rehearsal: its data are made again from seed "
                      f"{settings['seed']}; {data_path} is not read")
-    try:
+    try:  # the bundled plan and lock are the bundle's: their faults are a bundle not intact
+        plan = compile_plan(plan_path)
+        state = read_lock(folder / "plan.lock.json") if old["preregistered"] else None
         table = rehearsal_table(plan, settings, data_path) if settings else None
         analysed = analyse(plan, data_path, table=table)
     except Stop as stop:
