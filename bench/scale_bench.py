@@ -39,34 +39,19 @@ PRESPEC = str(Path(PYTHON).parent / "prespec")
 DEMO_PLAN = ROOT / "plans" / "dusk-sleep.yaml"
 
 sys.path.insert(0, str(ROOT / "plans"))
+sys.path.insert(0, str(HERE))
 from make_demo_data import generate as demo_rows  # noqa: E402
 
-# bench/run.py's sampler, and the CPU time of the finished tree (the render child is waited
-# for by its parent, so its time is in RUSAGE_CHILDREN of the run)
-WRAPPER = r"""
-import os, resource, subprocess, sys, time
+# bench/run.py's sampler of the process tree's resident memory, and the CPU time of the
+# finished tree (the render child is waited for by its parent, so its time is in
+# RUSAGE_CHILDREN of the run)
+from run import WRAPPER as _RUN_WRAPPER  # noqa: E402
 
-def tree(root):
-    found, todo = [], [root]
-    while todo:
-        pid = todo.pop()
-        found.append(pid)
-        try:
-            with open(f"/proc/{pid}/task/{pid}/children") as f:
-                todo.extend(int(c) for c in f.read().split())
-        except OSError:
-            pass
-    return found
-
-def resident(pid):
-    try:
-        with open(f"/proc/{pid}/statm") as f:
-            return int(f.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
-    except OSError:
-        return 0
-
+WRAPPER = _RUN_WRAPPER[:_RUN_WRAPPER.index("start = time.perf_counter()")] + r"""
+import tempfile
+err = tempfile.TemporaryFile()  # a file, not a pipe: a full pipe would stall the run
 start = time.perf_counter()
-child = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+child = subprocess.Popen(sys.argv[1:], stdout=subprocess.DEVNULL, stderr=err)
 peak = 0
 while child.poll() is None:
     peak = max(peak, sum(resident(p) for p in tree(child.pid)))
@@ -74,7 +59,8 @@ while child.poll() is None:
 wall = time.perf_counter() - start
 usage = resource.getrusage(resource.RUSAGE_CHILDREN)
 peak = max(peak, usage.ru_maxrss * 1024)
-sys.stderr.write(child.stderr.read().decode(errors="replace"))
+err.seek(0)
+sys.stderr.write(err.read().decode(errors="replace"))
 print(f"{child.returncode} {wall:.6f} {usage.ru_utime + usage.ru_stime:.6f} {peak}")
 """
 
