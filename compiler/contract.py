@@ -21,7 +21,7 @@ import numpy as np
 
 from .bound import EXAMPLES, CodedColumn, Sample, Table, Tally, TextColumn
 from .plan import Analysis, Plan, Variable
-from .problems import Problem
+from .problems import Problem, listed
 from .suggest import level_hints, nearest, shown
 
 # --- checks over arrays -------------------------------------------------------------------
@@ -227,9 +227,9 @@ def findings(plan: Plan, table: Table) -> list[Problem]:
         if table.rows_read:
             problems.extend(_column_findings(plan, table, variable, variable.name in logged))
     if table.unused_columns:
-        listed = ", ".join(table.unused_columns)
         problems.append(Problem(f"columns the data dictionary does not declare, not read: "
-                                f"{listed}", severity="warning", code="unused-columns",
+                                f"{listed(table.unused_columns)}", severity="warning",
+                                code="unused-columns",
                                 details={"columns": list(table.unused_columns)}))
     return problems
 
@@ -310,10 +310,10 @@ def level_findings(plan: Plan, table: Table, variable: Variable, outside: Tally,
     problems = []
     if outside.count:
         foreign = {v: n for v, n in counts.items() if v not in variable.levels}
-        listed = ", ".join(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
+        values = listed(f"`{v}` ({n} rows)" for v, n in sorted(foreign.items()))
         problems.append(_problem(
             plan, table, variable.name, outside,
-            f"values outside the declared levels ({', '.join(variable.levels)}): {listed}",
+            f"values outside the declared levels ({', '.join(variable.levels)}): {values}",
             "unknown-level", level_hints(foreign, variable.levels)))
     if variable.name not in {a.exposure for a in plan.analyses}:
         # an exposure's levels are checked per analysis (sample_findings)

@@ -13,6 +13,7 @@ from enum import IntEnum
 from typing import Iterable, Literal
 
 Severity = Literal["error", "warning"]
+LISTED = 10  # names a message or the report shows of a longer list (results.json has all)
 
 
 class Exit(IntEnum):
@@ -123,6 +124,17 @@ def sorted_problems(problems: Iterable[Problem]) -> tuple[Problem, ...]:
         return (not p.is_error, place.file, place.line, place.col, p.column or "", p.message)
 
     return tuple(sorted(problems, key=key))
+
+
+def listed(names: Iterable[str], *, number=str, limit: int = LISTED) -> str:
+    """Names for a message or the report: all of a list of up to ``limit``, else the first
+    ``limit``, how many more and how many in all (``number`` writes the counts). The
+    whole list belongs in the results document beside the message."""
+    names = list(names)
+    if len(names) <= limit:
+        return ", ".join(names)
+    return (f"{', '.join(names[:limit])} and {number(len(names) - limit)} more "
+            f"({number(len(names))} in all)")
 
 
 def stop_if_errors(problems: Iterable[Problem], exit_code: Exit) -> tuple[Problem, ...]:

@@ -8,6 +8,7 @@ The per-analysis part (tier tables, comparisons, exposure plot, diagnostics) liv
 from __future__ import annotations
 
 from . import report_format as f
+from .problems import LISTED, listed
 from .report_format import Cell, Counter, Notes
 from .viewmodel_analysis import analysis_view, characteristics_view
 from .viewmodel_decisions import decision_view, summary_row
@@ -86,7 +87,9 @@ def contract_view(results: dict) -> dict:
              ("size", f"{f.integer(data['size_bytes'])} bytes"),
              ("rows read", f.integer(data["rows_read"])),
              ("sha256", data["sha256"])]
-    unused = ", ".join(data["unused_columns"]) or "none"
+    unused = listed(data["unused_columns"], number=f.integer) or "none"
+    if len(data["unused_columns"]) > LISTED:  # a long list costs seconds of PDF layout
+        unused += "; results.json lists every one (data.unused_columns)"
     facts.append(("columns not in the dictionary", unused))
     return {"findings": findings, "facts": facts}
 
