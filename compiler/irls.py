@@ -9,9 +9,9 @@ The iteration is the one statsmodels' GLM.fit runs by default (starting values
 ``family.starting_mu``, convergence when successive deviances agree within 1e-8, at most
 100 iterations; the covariance comes from the weights of the last weighted least-squares
 step). That criterion leaves 9–12 correct digits in the coefficients, so once it is met
-REFINE_STEPS more Newton steps are taken, as the in-memory fit takes them after statsmodels
-(compiler/fit_glm.py): both land on the maximum-likelihood estimate to working precision,
-in the same number of iterations.
+REFINE_STEPS more Newton steps are taken, to the maximum-likelihood estimate at working
+precision. An in-memory fit (compiler/fit_glm.py) runs the same passes over the rows it
+holds, a chunk at a time (``in_batches``).
 Every tier of an analysis is fitted in the same passes: a tier that has converged simply
 stops taking part.
 """
@@ -186,26 +186,6 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
     return tuple(t.done for t in tiers)  # type: ignore[misc]
 
 
-def refine(x: np.ndarray, y: np.ndarray, offset: np.ndarray | None, family_name: str,
-           beta: np.ndarray) -> np.ndarray:
-    """REFINE_STEPS Newton (IRLS) steps from ``beta`` on data held in memory: the in-memory
-    fit's counterpart of the streamed passes after the deviance criterion."""
-    from .qr import augmented_r
-
-    family = Family(family_name)
-    off = 0.0 if offset is None else offset
-    beta = np.asarray(beta, dtype=np.float64)
-    width = len(beta)
-    for _ in range(REFINE_STEPS):
-        eta = x @ beta + off
-        mu = family.mean(eta)
-        derivative = family.link_deriv(mu)
-        weight = 1 / (derivative ** 2 * family.variance(mu))
-        r = augmented_r(x, eta + derivative * (y - mu) - off, weights=weight)
-        beta = solve_triangular(r[:width, :width], r[:width, width])
-    return beta
-
-
 def _close(before: float, after: float, tolerance: float) -> bool:
     change = abs(before - after)
     return change <= tolerance or change <= ROUNDING * abs(after)
@@ -243,7 +223,7 @@ def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
 
 def in_batches(x: np.ndarray, y: np.ndarray, offset: np.ndarray | None,
                rows: int) -> Batches:
-    """Arrays held in memory, served as batches of ``rows`` rows (for tests and small data)."""
+    """Arrays held in memory, served as batches of ``rows`` rows (views, no copies)."""
 
     def passes() -> Iterator[Batch]:
         for start in range(0, len(y), rows):
