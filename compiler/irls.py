@@ -166,7 +166,10 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
             break
         if on_pass is not None:
             on_pass(iteration)
-        sums = _one_pass(batches(), family, moments, active)
+        # the log-likelihood and Pearson χ² are kept from the last pass only: summed there
+        last = [t.refining is not None and t.refining >= REFINE_STEPS or REFINE_STEPS == 0
+                or len(t.deviances) - 1 >= max_iterations for t in active]
+        sums = _one_pass(batches(), family, moments, active, last)
         for tier, (dev, null_dev, llf, pearson, boundary, acc) in zip(active, sums):
             tier.deviances.append(dev)
             seen = len(tier.deviances) - 2  # iterations completed before this pass
@@ -192,12 +195,17 @@ def _close(before: float, after: float, tolerance: float) -> bool:
 
 
 def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
-              tiers: list[_Tier]) -> list[tuple]:
-    sums = [[0.0, 0.0, 0.0, 0.0, np.inf, TsqrAccumulator(t.width + 1)] for t in tiers]
+              tiers: list[_Tier], last: list[bool]) -> list[tuple]:
+    """Per tier: deviance, null deviance, log-likelihood and Pearson χ² (NaN unless ``last``
+    says the pass may be the tier's last), the closest fitted value to the boundary, and
+    the R factor of the weighted working design."""
+    nan = float("nan")
+    sums = [[0.0, 0.0, 0.0 if final else nan, 0.0 if final else nan, np.inf,
+             TsqrAccumulator(t.width + 1)] for t, final in zip(tiers, last)]
     for x, y, offset in batches:
-        null_mu = _null_mean(family, moments, offset, len(y))
+        null_deviance = family.deviance(y, _null_mean(family, moments, offset, len(y)))
         off = 0.0 if offset is None else offset
-        for tier, acc in zip(tiers, sums):
+        for tier, acc, final in zip(tiers, sums, last):
             if tier.params is None:
                 mu = family.start(y, moments.y_mean)
                 eta = family.link(mu)
@@ -205,9 +213,10 @@ def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
                 eta = x[:, :tier.width] @ tier.params + off
                 mu = family.mean(eta)
             acc[0] += family.deviance(y, mu)
-            acc[1] += family.deviance(y, null_mu)
-            acc[2] += family.log_likelihood(y, mu)
-            acc[3] += family.pearson(y, mu)
+            acc[1] += null_deviance
+            if final:
+                acc[2] += family.log_likelihood(y, mu)
+                acc[3] += family.pearson(y, mu)
             if len(mu):
                 near = np.minimum(mu, 1 - mu) if family.name == "binomial" else mu
                 acc[4] = min(acc[4], float(near.min()))
