@@ -156,3 +156,27 @@ def test_a_glm_fit_makes_no_copy_of_its_design():
     assert all(tier.converged for tier in result.tiers)
     whole = d.x.shape[0] * d.x.shape[1] * 8  # the n × p design in float64
     assert peak < whole, f"{peak / whole:.2f} design copies"
+
+
+def test_a_tier_whose_iteration_fails_is_reported_and_the_others_are_fitted(monkeypatch):
+    """A failure inside one tier's IRLS (here a LinAlgError injected for the adjusted tier,
+    as a singular weighted design would raise) costs that tier alone, with the reason."""
+    import compiler.irls as irls
+
+    _, d, plan, analysis = _fit("binomial")
+    expected = fit(plan, analysis, d)
+    failing = d.tier_width[-1]
+    real = irls.fit_tiers
+
+    def fit_tiers(batches, family, widths, **options):
+        if failing in list(widths):
+            raise np.linalg.LinAlgError("singular matrix")
+        return real(batches, family, widths, **options)
+
+    monkeypatch.setattr(irls, "fit_tiers", fit_tiers)
+    result = fit(plan, analysis, d)
+    crude, adjusted = result.tiers
+    assert crude.coefficients == expected.tiers[0].coefficients
+    assert adjusted.converged is False and adjusted.reason.startswith("the fit failed")
+    assert all(c.estimate is None for c in adjusted.coefficients)
+    assert result.comparisons[0].statistic is None
