@@ -53,7 +53,7 @@ def make_problem(rows: int, seed: int = 2024):
     variables = tuple(Variable(n, "continuous") for n in ["y"] + names)
     plan = Plan(1, Study("bench"), DataSource(None, "csv"), variables, (), (analysis,))
     design = Design(analysis="bench", x=x, y=y, offset=None,
-                    labels=tuple(["(intercept)"] + names), column_term=tuple(["(intercept)"] + names),
+                    labels=tuple(["intercept"] + names), column_term=tuple(["intercept"] + names),
                     tier_names=tuple(t.name for t in tiers), tier_width=WIDTHS,
                     exposure_columns=(1,), row_ids=None)
     return plan, analysis, design

@@ -10,7 +10,8 @@ import math
 
 import numpy as np
 
-from .fitted import Coefficient, ExposureInference, JointTest
+from .fitted import Coefficient, ExposureInference, JointTest, Natural
+from .words import NATURAL_SCALE
 
 
 def finite_or_none(value) -> float | None:
@@ -21,6 +22,23 @@ def finite_or_none(value) -> float | None:
     return value if math.isfinite(value) else None
 
 
+def exp_or_none(value: float | None) -> float | None:
+    """exp of a model-scale value, None when it is None or exp overflows a double."""
+    if value is None or value > 709.0:  # exp overflows double precision beyond ~709.78
+        return None
+    return finite_or_none(math.exp(value))
+
+
+def natural_scale(family: str, estimate: float | None, low: float | None,
+                  high: float | None) -> Natural:
+    """A model-scale estimate and interval on the natural scale: as they are for an identity
+    link (a difference), exp of each for a log or logit link (an odds or rate ratio)."""
+    scale = NATURAL_SCALE[family]
+    if scale == "difference":
+        return Natural(scale, estimate, low, high)
+    return Natural(scale, exp_or_none(estimate), exp_or_none(low), exp_or_none(high))
+
+
 def critical_value(confidence: float, df: float | None) -> float:
     """The two-sided quantile: t on ``df`` degrees of freedom, or the normal when df is None."""
     from scipy import special  # the functions scipy.stats' t and norm call, minus overhead
@@ -29,10 +47,10 @@ def critical_value(confidence: float, df: float | None) -> float:
     return float(special.ndtri(upper) if df is None else special.stdtrit(df, upper))
 
 
-def two_sided_p(statistic: float, df: float | None) -> float:
+def two_sided_p(test_value: float, df: float | None) -> float:
     from scipy import special
 
-    a = abs(statistic)
+    a = abs(test_value)
     return float(2.0 * (special.ndtr(-a) if df is None else special.stdtr(df, -a)))
 
 
@@ -54,10 +72,10 @@ def coefficient_table(labels, estimates, cov, df: float | None, confidence: floa
             rows.append(Coefficient(label, estimate, None, None, None, None, None, why))
             continue
         se = math.sqrt(variance)
-        statistic = estimate / se
+        test_value = estimate / se
         rows.append(Coefficient(
-            label, estimate, se, finite_or_none(statistic),
-            finite_or_none(two_sided_p(statistic, df)),
+            label, estimate, se, finite_or_none(test_value),
+            finite_or_none(two_sided_p(test_value, df)),
             finite_or_none(estimate - q * se), finite_or_none(estimate + q * se)))
     return tuple(rows)
 

@@ -129,7 +129,7 @@ class Term:
             return f"log({self.variables[0]})"
         if self.form == "spline":
             return f"spline({self.variables[0]})"
-        return "*".join(self.variables)
+        return " × ".join(self.variables)  # as compiler.columns joins a product's sides
 
 
 @dataclass(frozen=True)
