@@ -222,7 +222,7 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
                              f"computed", numbers)
     what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
     reason = (f"the {end} end of the {level_percent(1 - 2 * alpha)} interval for the {what} "
-              f"{term}, {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
+              f"({term}), {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
               f"{word} the margin {fmt_num(decision.margin)} "
               f"({fmt_p_phrase('non-inferiority p', p)}, α = {fmt_alpha(alpha)}; "
               f"{effect_summary(analysis, term, numbers)})")
@@ -256,7 +256,7 @@ def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInfer
         return _undetermined(f"the interval for {term} could not be computed", numbers)
     inside = low < lower and upper < high
     what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
-    reason = (f"the {level_percent(1 - 2 * alpha)} interval for the {what} {term}, "
+    reason = (f"the {level_percent(1 - 2 * alpha)} interval for the {what} ({term}), "
               f"{_bound_words(analysis, lower)} to {_bound_words(analysis, upper)}, "
               f"{'lies' if inside else 'does not lie'} inside the margins "
               f"{fmt_num(decision.margins[0])} to {fmt_num(decision.margins[1])} "
@@ -340,7 +340,7 @@ def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
     flagged = change.relative > decision.threshold
     numbers.update(relative=change.relative, direction=change.direction, flagged=flagged)
     verdict_words = ("confounding flagged" if flagged else "no confounding flagged")
-    reason = (f"the {term} estimate ({SCALE[analysis.family]}) {in_words(change)}, from "
+    reason = (f"the estimate of {term} ({SCALE[analysis.family]}) {in_words(change)}, from "
               f"{fmt_num(start)} in {decision.from_tier} to {fmt_num(end)} in {decision.tier}: "
               f"a change whose size {'exceeds' if flagged else 'does not exceed'} "
               f"the {fmt_percent(decision.threshold)} threshold, {verdict_words}")

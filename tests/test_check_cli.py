@@ -45,7 +45,7 @@ def test_the_demo_plan_passes(capsys):
 def test_explain_shows_the_expanded_design_columns(capsys):
     assert main(["check", "--explain", DEMO]) == 0
     out = capsys.readouterr().out
-    assert "guidance=coached" in out
+    assert "guidance: coached vs none" in out
     assert "age^2" in out
     assert "district=hillside, district=market, district=riverside" in out
 
@@ -86,7 +86,8 @@ def test_json_of_a_valid_plan_carries_the_explanation(capsys):
     doc = json.loads(capsys.readouterr().out)
     assert doc["problems"] == []
     primary = doc["explain"]["analyses"][0]
-    assert primary["tiers"][0]["columns"] == ["(intercept)", "guidance=leaflet", "guidance=coached"]
+    assert primary["tiers"][0]["columns"] == ["intercept", "guidance: leaflet vs none",
+                                              "guidance: coached vs none"]
 
 
 def test_a_missing_plan_file_exits_2(tmp_path, capsys):

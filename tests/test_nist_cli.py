@@ -44,7 +44,7 @@ def test_longley_coefficient_through_the_cli(certified_tier, term):
 def test_longley_standard_error_through_the_cli(certified_tier, term):
     row = next(c for c in certified_tier["coefficients"] if c["term"] == term)
     _, certified_sd = nist.CERTIFIED[term]
-    assert nist.lre(row["std_error"], certified_sd) >= 10
+    assert nist.lre(row["standard_error"], certified_sd) >= 10
 
 
 def test_longley_r_squared_and_residual_ss_through_the_cli(certified_tier):

@@ -278,7 +278,7 @@ def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches)
     numbers_agree(in_memory.fits, streamed.fits, "fits")
     for fit in streamed.fits:
         for tier in fit.tiers:
-            assert all(c.std_error is not None for c in tier.coefficients), (fit.analysis, tier.name)
+            assert all(c.standard_error is not None for c in tier.columns), (fit.analysis, tier.name)
             assert [e.covariance for e in tier.exposure] == ["cluster(site)"]
 
 
