@@ -73,7 +73,7 @@ def test_gaussian_robust_comparison_is_the_wald_test_of_the_added_terms():
     comparison = result.comparisons[0]
     reference = sm.OLS(d.y, d.x).fit(cov_type="HC3", use_t=True).wald_test(
         np.eye(4)[2:], scalar=True, use_f=True)  # reference library
-    assert comparison.test == "Wald" and comparison.df_added == 2
+    assert comparison.method == "Wald" and comparison.df_added == 2
     assert comparison.test_value == pytest.approx(float(reference.fvalue), rel=1e-9)
     assert comparison.p == pytest.approx(float(reference.pvalue), rel=1e-8)
     assert comparison.df_denominator == reference.df_denom
@@ -118,7 +118,7 @@ def test_glm_robust_comparison_is_a_wald_chi_square():
     comparison = result.comparisons[0]
     reference = sm.GLM(d.y, d.x, family=sm.families.Binomial()).fit(cov_type="HC0").wald_test(
         np.eye(4)[2:], scalar=True)  # reference library (chi-square form)
-    assert comparison.test == "Wald" and comparison.df_denominator is None
+    assert comparison.method == "Wald" and comparison.df_denominator is None
     assert comparison.test_value == pytest.approx(float(reference.statistic), rel=1e-6)
     assert comparison.p == pytest.approx(float(reference.pvalue), rel=1e-6)
 

@@ -43,7 +43,7 @@ def test_a_robust_comparison_into_an_exact_fit_is_null_with_the_reason(data, cov
     _, result = _fit(WAMPLER[data], covariance)
     into_exact = result.comparisons[-1]
     assert result.tier("quintic").reason.startswith("exact fit")
-    assert into_exact.test == "Wald"
+    assert into_exact.method == "Wald"
     assert into_exact.test_value is None and into_exact.p is None
     assert "exact fit" in into_exact.reason and "quintic" in into_exact.reason
 

@@ -14,6 +14,7 @@ from scipy import stats
 import fitkit as fk
 from compiler.design import design
 from compiler.fit import fit
+from compiler.fitted import Natural
 from compiler.plan import Assumption, Covariance, Variable
 from compiler.problems import Exit, Stop
 
@@ -72,7 +73,7 @@ def test_tier_summaries_match_statsmodels_ols(fitted):
         assert tier.rss == pytest.approx(ols.ssr, rel=1e-10)
         assert tier.sigma2 == pytest.approx(ols.scale, rel=1e-10)
         assert tier.r_squared == pytest.approx(ols.rsquared, rel=1e-10)
-        assert tier.adj_r_squared == pytest.approx(ols.rsquared_adj, rel=1e-10)
+        assert tier.adjusted_r_squared == pytest.approx(ols.rsquared_adj, rel=1e-10)
         assert tier.log_likelihood == pytest.approx(ols.llf, rel=1e-10)
         assert tier.aic == pytest.approx(ols.aic, rel=1e-10)
         assert tier.bic == pytest.approx(ols.bic, rel=1e-10)
@@ -85,11 +86,11 @@ def test_f_comparisons_match_statsmodels_compare_f_test(fitted):
         big = sm.OLS(d.y, d.x[:, :d.tier_width[k]]).fit()
         small = sm.OLS(d.y, d.x[:, :d.tier_width[k - 1]]).fit()
         f, p, df_diff = big.compare_f_test(small)  # reference library
-        assert comparison.test == "F"
+        assert comparison.method == "F"
         assert comparison.df_added == df_diff
         assert comparison.test_value == pytest.approx(f, rel=1e-9)
         assert comparison.p == pytest.approx(p, rel=1e-8)
-        assert comparison.df_denominator == big.residual_df
+        assert comparison.df_denominator == big.df_resid
 
 
 def test_joint_exposure_test_matches_statsmodels_f_test(fitted):
@@ -105,14 +106,19 @@ def test_joint_exposure_test_matches_statsmodels_f_test(fitted):
         assert joint.p == pytest.approx(float(reference.pvalue), rel=1e-8)
 
 
-def test_exposure_across_tiers_reports_change_from_first(fitted):
+def test_exposure_across_tiers_reports_the_change_vs_the_first_tier(fitted):
     _, result = fitted
-    first = {r.term: r.estimate for r in result.exposure if r.tier == "crude"}
+    first = {r.column: r.estimate for r in result.exposure if r.tier == "crude"}
     assert len(result.exposure) == 3 * 2
     for row in result.exposure:
-        expected = (row.estimate - first[row.term]) / abs(first[row.term])
-        assert row.change_from_first == pytest.approx(expected, rel=1e-12)
-        assert row.ratio is None  # gaussian: no ratio scale
+        b, b1 = row.estimate, first[row.column]
+        assert row.change_vs_first.relative == pytest.approx(abs(b - b1) / abs(b1), rel=1e-12)
+        assert row.change_vs_first.direction == (
+            "none" if b == b1 else "sign reversed" if b * b1 < 0
+            else "away from zero" if abs(b) > abs(b1) else "toward zero")
+        # gaussian identity link: the natural scale is the difference itself
+        assert row.natural == Natural("difference", b, row.low, row.high)
+        assert row.level == 0.95
 
 
 def test_exposure_carries_the_fallback_covariance_of_an_assumption():
@@ -155,9 +161,10 @@ def test_aliased_column_stops_naming_the_column_and_tier():
         _fit(columns)
     assert stop.value.exit_code == Exit.DATA_CONTRACT
     messages = [p.message for p in stop.value.problems]
-    # district=b never occurs (a zero column); district=c equals guidance=coached
-    assert any("tier full" in m and "`district=b`" in m and "zero" in m for m in messages)
-    assert any("`district=c`" in m and "`guidance=coached`" in m for m in messages)
+    # district b never occurs (a zero column); district c equals guidance coached
+    assert any("tier full" in m and "`district: b vs a`" in m and "zero" in m for m in messages)
+    assert any("`district: c vs a`" in m and "`guidance: coached vs none`" in m
+               for m in messages)
     assert {p.column for p in stop.value.problems} == {"district"}
 
 

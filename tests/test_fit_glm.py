@@ -122,7 +122,7 @@ def test_likelihood_ratio_comparison_on_chi_square(logistic):
     big = sm.Logit(d.y, d.x).fit(disp=0, tol=1e-12)
     lr = 2 * (big.llf - small.llf)  # references.md: 2(ℓ_full − ℓ_reduced) on χ²(df added)
     comparison = result.comparisons[0]
-    assert comparison.test == "LR" and comparison.df_added == 1
+    assert comparison.method == "LR" and comparison.df_added == 1
     assert comparison.test_value == pytest.approx(lr, rel=1e-6)
     assert comparison.p == pytest.approx(stats.chi2.sf(lr, 1), rel=1e-5)
 
@@ -139,9 +139,10 @@ def test_joint_exposure_test_is_a_wald_chi_square(logistic):
 def test_exposure_is_also_given_as_odds_ratio(logistic):
     _, result = logistic
     for row in result.exposure:
-        assert row.ratio == pytest.approx(math.exp(row.estimate), rel=1e-12)
-        assert row.ratio_ci_low == pytest.approx(math.exp(row.low), rel=1e-12)
-        assert row.ratio_ci_high == pytest.approx(math.exp(row.high), rel=1e-12)
+        assert row.natural.scale == "odds ratio"
+        assert row.natural.estimate == pytest.approx(math.exp(row.estimate), rel=1e-12)
+        assert row.natural.low == pytest.approx(math.exp(row.low), rel=1e-12)
+        assert row.natural.high == pytest.approx(math.exp(row.high), rel=1e-12)
 
 
 def test_events_count_the_outcome_ones(logistic):
