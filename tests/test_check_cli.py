@@ -47,7 +47,8 @@ def test_explain_shows_the_expanded_design_columns(capsys):
     out = capsys.readouterr().out
     assert "guidance: coached vs none" in out
     assert "age^2" in out
-    assert "district=hillside, district=market, district=riverside" in out
+    assert ("district: hillside vs harbour; district: market vs harbour;\n"
+            "      district: riverside vs harbour") in out
 
 
 def test_explain_states_the_sample_rule_and_the_nested_tests(capsys):
@@ -55,8 +56,10 @@ def test_explain_states_the_sample_rule_and_the_nested_tests(capsys):
     out = capsys.readouterr().out
     assert ("complete cases over latency_w8, guidance, latency_w0, age, night_shift, district,"
             in out.replace("\n    ", " "))
-    assert "crude → baseline: F test of the 2 added columns" in out
-    assert "crude → adjusted: LR test of the 3 added columns" in out
+    assert ("crude → baseline: extra sum of squares test of the 2 added columns, referred "
+            "to F") in out
+    assert ("crude → adjusted: likelihood ratio test of the 3 added columns, referred "
+            "to χ²") in out
 
 
 def test_an_invalid_plan_exits_2_with_its_place(tmp_path, capsys):

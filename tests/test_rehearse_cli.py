@@ -113,7 +113,7 @@ def test_effects_are_planted_per_analysis_and_level_on_the_natural_scale(tmp_pat
         {"analysis": "primary", "level": None, "scale": "difference", "value": -4.0},
         {"analysis": "primary", "level": "coached", "scale": "difference", "value": -12.0},
         {"analysis": "awakenings", "level": None, "scale": "rate ratio", "value": 0.5}]
-    exposure = {(a["id"], row["term"]): row for a in document["analyses"]
+    exposure = {(a["id"], row["column"]): row for a in document["analyses"]
                 for row in a["exposure"] if row["tier"] == a["tiers"][-1]["name"]}
     # each estimate lies within 4 standard errors of what was planted (on the model scale: a
     # difference, or the ratio's logarithm; a miss has probability 6e-5 per estimate under the

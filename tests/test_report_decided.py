@@ -118,7 +118,8 @@ def test_every_verdict_line_on_an_estimate_carries_its_natural_scale_interval(do
     d = _decision(document, decision_id)
     natural = d["inference"]["natural"]
     words = "odds ratio" if d["analysis"] == "settled" else "difference"
-    assert re.search(rf"{words} guidance=\w+ -?[\d.]+, [\d.]+% CI -?[\d.]+ to -?[\d.]+",
+    assert re.search(rf"{words} \(guidance: \w+ vs none\) -?[\d.]+, [\d.]+% CI -?[\d.]+ "
+                     rf"to -?[\d.]+",
                      d["reason"]), d["reason"]
     assert natural["low"] < natural["estimate"] < natural["high"]
 

@@ -198,7 +198,7 @@ def test_levels_on_a_continuous_variable_are_refused(tmp_path):
 def test_no_variable_may_be_named_like_the_intercept_column(tmp_path):
     text = variant("  visits: {kind: count}", '  "intercept": {kind: count}')
     assert problems(tmp_path, text) == [
-        ("`(intercept)` is the label of the model's intercept column, so no variable may be "
+        ("`intercept` is the label of the model's intercept column, so no variable may be "
          "named so", 11, 3)]
 
 
