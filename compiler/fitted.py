@@ -64,7 +64,7 @@ class ExposureInference:
     Decisions read these, so that a fallback covariance needs no refit.
     """
 
-    covariance: str  # "classical", "HC3", "cluster(site)", ...
+    covariance: str  # "classical", "HC3", "clustered by site", ...
     columns: tuple[Coefficient, ...]  # one per exposure column
     df: float | None
     joint: JointTest | None  # only when the exposure has several columns

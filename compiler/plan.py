@@ -153,7 +153,7 @@ class Covariance:
 
     @property
     def label(self) -> str:
-        return f"cluster({self.cluster})" if self.kind == "cluster" else self.kind
+        return f"clustered by {self.cluster}" if self.kind == "cluster" else self.kind
 
 
 @dataclass(frozen=True)

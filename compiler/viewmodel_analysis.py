@@ -189,7 +189,7 @@ def _comparison_row(c: dict, notes: Notes) -> dict:
 def _exposure_row(a: dict, r: dict, notes: Notes) -> dict:
     why = r.get("reason")
     first = r["tier"] == a["tiers"][0]["name"]
-    change = (Cell("(first tier)", numeric=False) if first else
+    change = (Cell("(first tier)") if first else
               _cell(notes, r["change_vs_first"], why, f.change))
     interval, natural = r["interval"], r["natural"]
     cells = [_estimate_cell(notes, r["estimate"], interval["low"], interval["high"], why),

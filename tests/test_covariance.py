@@ -65,7 +65,7 @@ def test_gaussian_cluster_matches_statsmodels_with_t_on_clusters_minus_one():
     np.testing.assert_allclose([c.p_two_sided for c in tier.columns], reference.pvalues,
                                rtol=1e-8)
     assert tier.exposure[0].df == reference.df_resid_inference == 11
-    assert tier.exposure[0].covariance == "cluster(site)"
+    assert tier.exposure[0].covariance == "clustered by site"
 
 
 def test_gaussian_robust_comparison_is_the_wald_test_of_the_added_terms():

@@ -116,7 +116,7 @@ def test_the_complete_case_set_covers_every_tier_and_the_cluster(tmp_path):
 def test_the_explanation_names_the_family_and_link(tmp_path):
     text = explain(plan(tmp_path))
     assert "Analysis counts: n by smoker, poisson family, log link" in text
-    assert "covariance: cluster(site)" in text
+    assert "covariance: clustered by site" in text
 
 
 def test_population_rules_are_written_with_plain_numbers():

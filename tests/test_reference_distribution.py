@@ -70,6 +70,6 @@ def test_results_and_report_name_the_reference():
     assert {c["test"] for c in inference["columns"]} == {"t"}
     facts = dict(_facts({"family": "gaussian", "outcome": "y", "exposure_variable": "arm",
                          "population": None, "rows_in_population": N, "n": N,
-                         "covariance": "cluster(site)", "confidence": 0.95,
+                         "covariance": "clustered by site", "confidence": 0.95,
                          "report_tier": "crude", **record}))
     assert facts["reference distribution"] == "t on clusters − 1 = 9 df, every tier"

@@ -281,7 +281,7 @@ def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches)
     for fit in streamed.fits:
         for tier in fit.tiers:
             assert all(c.standard_error is not None for c in tier.columns), (fit.analysis, tier.name)
-            assert [e.covariance for e in tier.exposure] == ["cluster(site)"]
+            assert [e.covariance for e in tier.exposure] == ["clustered by site"]
 
 
 @pytest.mark.parametrize("suffix", [".parquet", ".xpt", ".dta"])
