@@ -1,9 +1,9 @@
 """The analysed sample's characteristics by exposure group: numbers for results.json.
 
 For one analysis, every variable it uses (outcome, covariates, offset, cluster; not an
-identifier) is summarised on the analysed rows, per exposure group and overall:
+identifier) is summarised on the analysed rows, per exposure group and for the whole sample:
 continuous → mean, SD (n − 1 divisor), median and quartiles; count → the same (the report
-shows median [Q1, Q3]); binary → count and share of 1s; categorical → count and share per
+shows "median (IQR q1 to q3)"); binary → count and share of 1s; categorical → count and share per
 declared level. Missing counts are taken in the population's rows, before the complete-case
 step (the analysed rows have none by construction), using the same population conditions
 as bind (compiler.population.holds). A categorical or binary exposure defines the groups;

@@ -97,7 +97,7 @@ def covariance_kind(label: str) -> str:
     return "classical" if label == "classical" else "robust"
 
 
-def wald_test(estimates, cov, columns, df: float | None, test: str,
+def wald_test(estimates, cov, columns, df: float | None, method: str,
               covariance: str = "classical") -> JointTest:
     """Joint test that the coefficients in ``columns`` are all zero.
 
@@ -111,11 +111,11 @@ def wald_test(estimates, cov, columns, df: float | None, test: str,
     columns = list(columns)
     q = len(columns)
     if estimates is None or cov is None:
-        return JointTest(test, q, df, None, None, "the coefficients could not be estimated")
+        return JointTest(method, q, df, None, None, "the coefficients could not be estimated")
     b = np.asarray(estimates, dtype=np.float64)[columns]
     v = np.asarray(cov, dtype=np.float64)[np.ix_(columns, columns)]
     if not (np.all(np.isfinite(b)) and np.all(np.isfinite(v))):
-        return JointTest(test, q, df, None, None, "the covariance matrix is not finite")
+        return JointTest(method, q, df, None, None, "the covariance matrix is not finite")
     # A robust covariance can be singular in exact arithmetic yet pass Cholesky in floating
     # point: a clustered one has rank at most (clusters − 1), so testing more columns than
     # that — e.g. cluster-level dummies — would give a statistic of 1e18. Check the rank first
@@ -123,24 +123,24 @@ def wald_test(estimates, cov, columns, df: float | None, test: str,
     rank = int(np.linalg.matrix_rank(v, hermitian=True))
     if rank < q:
         cause = SINGULAR_CAUSE[covariance_kind(covariance)]
-        return JointTest(test, q, df, None, None,
+        return JointTest(method, q, df, None, None,
                          f"the covariance of the {q} tested coefficients is singular (rank "
                          f"{rank}); {cause}")
     try:
         factor = np.linalg.cholesky(v)
     except np.linalg.LinAlgError:
-        return JointTest(test, q, df, None, None,
+        return JointTest(method, q, df, None, None,
                          "the covariance of the tested coefficients is singular")
     w = float(np.sum(np.linalg.solve(factor, b) ** 2))  # ‖L⁻¹b‖² = bᵀV⁻¹b
     if df is None:
-        return JointTest(test, q, None, finite_or_none(w), finite_or_none(special.chdtrc(q, w)))
+        return JointTest(method, q, None, finite_or_none(w), finite_or_none(special.chdtrc(q, w)))
     f = w / q
-    return JointTest(test, q, float(df), finite_or_none(f),
+    return JointTest(method, q, float(df), finite_or_none(f),
                      finite_or_none(special.fdtrc(q, df, f)))
 
 
 def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns,
-                       df: float | None, confidence: float, joint_test: str,
+                       df: float | None, confidence: float, method: str,
                        reason: str | None = None) -> ExposureInference:
     """The exposure's coefficients under one covariance, with the joint test when the exposure
     has several columns."""
@@ -151,8 +151,8 @@ def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns
                               df, confidence, reason)
     joint = None
     if len(columns) > 1:
-        joint = (JointTest(joint_test, len(columns), df, None, None, reason) if reason
-                 else wald_test(estimates, cov, columns, df, joint_test, covariance))
+        joint = (JointTest(method, len(columns), df, None, None, reason) if reason
+                 else wald_test(estimates, cov, columns, df, method, covariance))
     return ExposureInference(covariance, table, None if df is None else float(df), joint)
 
 
