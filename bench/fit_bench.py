@@ -65,7 +65,7 @@ def core_fit(plan, analysis, design):
     r = augmented_r(design.x, design.y)
     fit_pass._check_rank(plan, analysis, design, r)
     fitted = fit_gaussian(analysis, design, r, distinct_covariances(plan, analysis))
-    return fit_pass.exposure_across_tiers(fitted.tiers, False)
+    return fit_pass.exposure_across_tiers(fitted.tiers, "gaussian", 0.95)
 
 
 def _one_thread(run):
