@@ -81,14 +81,15 @@ KeyOf = Callable[[dict], "str | None"]
 
 
 def _default_key(item: dict) -> str | None:
-    """Results entries by id, name, tier and term, covariance, tiers compared, row or reason."""
+    """Results entries by id, name, tier and design column, covariance, tiers compared, row or
+    reason."""
     def text(name):
         return item.get(name) if isinstance(item.get(name), str) else None
 
     if text("id") or text("name"):
         return text("id") or text("name")
-    if text("term"):
-        return f"{text('tier')}, {text('term')}" if text("tier") else text("term")
+    if text("column"):
+        return f"{text('tier')}, {text('column')}" if text("tier") else text("column")
     if text("covariance"):
         return text("covariance")
     if text("from") and text("to"):

@@ -127,7 +127,7 @@ class GlmTierFit:
     deviance: float
     null_deviance: float
     log_likelihood: float
-    pearson_chi2: float
+    pearson_x2: float
     iterations: int
     converged: bool
     closest_boundary: float  # min over rows of min(μ, 1 − μ) (binomial) or μ (poisson)
