@@ -53,7 +53,7 @@ def make_problem(rows: int, seed: int = 2024):
     variables = tuple(Variable(n, "continuous") for n in ["y"] + names)
     plan = Plan(1, Study("bench"), DataSource(None, "csv"), variables, (), (analysis,))
     design = Design(analysis="bench", x=x, y=y, offset=None,
-                    labels=tuple(["(intercept)"] + names), column_term=tuple(["(intercept)"] + names),
+                    labels=tuple(["intercept"] + names), column_term=tuple(["intercept"] + names),
                     tier_names=tuple(t.name for t in tiers), tier_width=WIDTHS,
                     exposure_columns=(1,), row_ids=None)
     return plan, analysis, design
@@ -65,7 +65,7 @@ def core_fit(plan, analysis, design):
     r = augmented_r(design.x, design.y)
     fit_pass._check_rank(plan, analysis, design, r)
     fitted = fit_gaussian(analysis, design, r, distinct_covariances(plan, analysis))
-    return fit_pass.exposure_across_tiers(fitted.tiers, False)
+    return fit_pass.exposure_across_tiers(fitted.tiers, "gaussian", 0.95)
 
 
 def _one_thread(run):

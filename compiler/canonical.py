@@ -81,14 +81,15 @@ KeyOf = Callable[[dict], "str | None"]
 
 
 def _default_key(item: dict) -> str | None:
-    """Results entries by id, name, tier and term, covariance, tiers compared, row or reason."""
+    """Results entries by id, name, tier and design column, covariance, tiers compared, row or
+    reason."""
     def text(name):
         return item.get(name) if isinstance(item.get(name), str) else None
 
     if text("id") or text("name"):
         return text("id") or text("name")
-    if text("term"):
-        return f"{text('tier')}, {text('term')}" if text("tier") else text("term")
+    if text("column"):
+        return f"{text('tier')}, {text('column')}" if text("tier") else text("column")
     if text("covariance"):
         return text("covariance")
     if text("from") and text("to"):
@@ -130,12 +131,15 @@ def show(value, limit: int = 60) -> str:
     return text if len(text) <= limit else text[: limit - 1] + "…"
 
 
-def differences(old, new, *, path: str = "", key_of: KeyOf = _default_key) -> list[str]:
+def differences(old, new, *, path: str = "", key_of: KeyOf = _default_key,
+                same=None) -> list[str]:
     """Every difference between two JSON values, one line each: ``PATH: OLD → NEW``,
     ``PATH: + ITEM`` or ``PATH: - ITEM``. List entries are matched by key where each
-    entry has a distinct one (``key_of``), by position otherwise."""
+    entry has a distinct one (``key_of``), by position otherwise. ``same(a, b)`` decides
+    whether two leaves are equal (default: exactly; compare passes one that forgives
+    rounding)."""
     out: list[str] = []
-    _diff(old, new, path, key_of, out)
+    _diff(old, new, path, key_of, out, same or _same)
     return out
 
 
@@ -147,17 +151,17 @@ def _same(a, b) -> bool:
     return type(a) is type(b) and a == b
 
 
-def _diff(old, new, path: str, key_of: KeyOf, out: list[str]) -> None:
+def _diff(old, new, path: str, key_of: KeyOf, out: list[str], same=_same) -> None:
     if isinstance(old, dict) and isinstance(new, dict):
         for key in sorted(set(old) | set(new)):
             sub = f"{path}.{key}" if path else key
-            _diff(old.get(key), new.get(key), sub, key_of, out)
+            _diff(old.get(key), new.get(key), sub, key_of, out, same)
         return
     if isinstance(old, list) or isinstance(new, list):
         if isinstance(old, (list, type(None))) and isinstance(new, (list, type(None))):
-            _diff_list(old or [], new or [], path, key_of, out)  # an absent list is empty
+            _diff_list(old or [], new or [], path, key_of, out, same)  # absent = empty
             return
-    if not _same(old, new):
+    if not same(old, new):
         out.append(f"{path}: {show(old)} → {show(new)}")
 
 
@@ -174,7 +178,8 @@ def _is_flat(items: Iterable) -> bool:
     return all(not isinstance(i, (dict, list)) for i in items)
 
 
-def _diff_list(old: list, new: list, path: str, key_of: KeyOf, out: list[str]) -> None:
+def _diff_list(old: list, new: list, path: str, key_of: KeyOf, out: list[str],
+               same=_same) -> None:
     old_keys, new_keys = _keys(old, key_of), _keys(new, key_of)
     if (old_keys is not None or not old) and (new_keys is not None or not new) and (old or new):
         old_keys, new_keys = old_keys or [], new_keys or []
@@ -186,7 +191,7 @@ def _diff_list(old: list, new: list, path: str, key_of: KeyOf, out: list[str]) -
         if common_old != common_new:
             out.append(f"{path}: order {', '.join(common_old)} → {', '.join(common_new)}")
         for k in common_new:
-            _diff(before[k], after[k], f"{path}[{k}]", key_of, out)
+            _diff(before[k], after[k], f"{path}[{k}]", key_of, out, same)
         return
     if _is_flat(old) and _is_flat(new):
         if sorted(map(show, old)) == sorted(map(show, new)):
@@ -203,4 +208,4 @@ def _diff_list(old: list, new: list, path: str, key_of: KeyOf, out: list[str]) -
         elif i >= len(new):
             out.append(f"{sub}: - {show(old[i])}")
         else:
-            _diff(old[i], new[i], sub, key_of, out)
+            _diff(old[i], new[i], sub, key_of, out, same)

@@ -1,9 +1,9 @@
 """The analysed sample's characteristics by exposure group: numbers for results.json.
 
 For one analysis, every variable it uses (outcome, covariates, offset, cluster; not an
-identifier) is summarised on the analysed rows, per exposure group and overall:
+identifier) is summarised on the analysed rows, per exposure group and for the whole sample:
 continuous → mean, SD (n − 1 divisor), median and quartiles; count → the same (the report
-shows median [Q1, Q3]); binary → count and share of 1s; categorical → count and share per
+shows "median (IQR q1 to q3)"); binary → count and share of 1s; categorical → count and share per
 declared level. Missing counts are taken in the population's rows, before the complete-case
 step (the analysed rows have none by construction), using the same population conditions
 as bind (compiler.population.holds). A categorical or binary exposure defines the groups;
@@ -48,7 +48,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
     sample = bound.sample(analysis.id)
     base = {"exposure": exposure.name, "grouped": grouped, "quartiles": QUARTILES}
     if any(n not in table.columns for n in (*names, exposure.name)) or sample.rows is None:
-        return {**base, "missing_basis": None, "groups": [], "overall": {"n": int(sample.flow.n)},
+        return {**base, "missing_basis": None, "groups": [], "whole_sample": {"n": int(sample.flow.n)},
                 "variables": [], "exposure_missing": None, "reason": STREAMED}
 
     analysed = np.zeros(table.rows_read, bool)
@@ -92,7 +92,7 @@ def summarise(plan: Plan, analysis: Analysis, bound: BoundData, map=map) -> dict
         "groups": [{"level": level, "n": int(np.count_nonzero(analysed & m)),
                     "n_population": int(np.count_nonzero(population & m))}
                    for level, m in zip(levels, group_masks)],
-        "overall": {"n": int(np.count_nonzero(analysed)),
+        "whole_sample": {"n": int(np.count_nonzero(analysed)),
                     "n_population": int(np.count_nonzero(population))},
         "variables": variables,
         "exposure_missing": int(np.count_nonzero(population & exposure_absent)),
@@ -122,7 +122,7 @@ def _entry(analysis: Analysis, exposure: Variable, variable: Variable, groups: l
             else "offset" if name == analysis.offset
             else "cluster" if name == analysis.covariance.cluster else "covariate")
     return {"name": name, "role": role, "kind": variable.kind, "label": variable.label,
-            "unit": variable.unit, "groups": groups, "overall": overall}
+            "unit": variable.unit, "groups": groups, "whole_sample": overall}
 
 
 def _group_levels(exposure: Variable) -> tuple[str, ...]:
@@ -309,7 +309,7 @@ class StreamedSummary:
             "missing_basis": "population",
             "groups": [{"level": level, "n": int(n), "n_population": int(m)}
                        for level, n, m in zip(self.levels, self.n, self.n_population)],
-            "overall": {"n": int(self.n[-1]), "n_population": int(self.n_population[-1])},
+            "whole_sample": {"n": int(self.n[-1]), "n_population": int(self.n_population[-1])},
             "variables": variables, "exposure_missing": int(self.exposure_missing),
             "reason": None,
         }

@@ -84,6 +84,18 @@ def _cmd_verify(args) -> Report:
     return verify(args.dir, data=args.data, key=args.key)
 
 
+def _cmd_qualify(args) -> Report:
+    from .qualify import qualify
+
+    return qualify(args.out, progress=not args.json)
+
+
+def _cmd_compare(args) -> Report:
+    from .compare import compare
+
+    return compare(args.first, args.second)
+
+
 def build_parser() -> argparse.ArgumentParser:
     def add_common(p: argparse.ArgumentParser, default) -> None:
         p.add_argument("--json", action="store_true", default=default,
@@ -164,6 +176,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--data", metavar="FILE", help="re-run the bundled plan on FILE and compare")
     p.add_argument("--key", metavar="PUB", help="check the manifest signature with this public key")
     p.set_defaults(handler=_cmd_verify)
+
+    p = sub.add_parser("qualify", parents=[common],
+                       help="run certified reference problems on this installation; seal the evidence",
+                       description="Run the certified reference problems through the run "
+                                   "pipeline and seal the evidence as a bundle; exit 7 when a "
+                                   "check misses its tolerance.")
+    p.add_argument("--out", metavar="DIR", help="bundle folder (default out/qualification)")
+    p.set_defaults(handler=_cmd_qualify)
+
+    p = sub.add_parser("compare", parents=[common], help="name every difference between two bundles",
+                       description="Name every difference between bundles A and B: plan, data, "
+                                   "values beyond rounding, verdicts, amendments.")
+    p.add_argument("first", metavar="A")
+    p.add_argument("second", metavar="B")
+    p.set_defaults(handler=_cmd_compare)
     return parser
 
 

@@ -26,14 +26,14 @@ from .plan import Covariance
 from .qr import one_blas_thread, row_chunks
 
 
-def reference_df(covariance: Covariance, family: str, df_resid: int,
+def reference_df(covariance: Covariance, family: str, residual_df: int,
                  clusters: int | None) -> float | None:
     """Degrees of freedom of the t reference, or None for the normal."""
     if family != "gaussian":
         return None
     if covariance.kind == "cluster":
         return float(clusters - 1) if clusters else None
-    return float(df_resid)
+    return float(residual_df)
 
 
 def reference_of(covariance: Covariance, family: str, tiers) -> Reference:

@@ -19,9 +19,10 @@ from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
 from .rules import Finding, base_numbers, change_in_estimate, effect_summary, equivalence
 from .rules import levels_summary, non_inferiority, superiority, tier_selection
 from .inference import finite_or_none
-from .rules_text import METHOD_NAME, RATIO, alpha_origin, exposure_term, fmt_alpha, fmt_num
+from .rules_text import METHOD_NAME, alpha_origin, exposure_term, fmt_alpha, fmt_num
 from .rules_text import fmt_p_phrase, level_basis, one_sided_caution
 from .verdicts import AssumptionOutcome, Verdict
+from .words import NATURAL_SCALE
 
 INFERENCE_RULES = {"superiority": superiority, "non-inferiority": non_inferiority,
                    "equivalence": equivalence}
@@ -46,7 +47,7 @@ def decide(plan: Plan, fits: tuple[AnalysisFit, ...]
              for d in plan.decisions}
     steps: dict[str, tuple[Multiplicity, Adjusted, tuple[Adjusted, ...]]] = {}
     for family in plan.multiplicity:
-        p_values = [first[i][0].p_value if first[i][0].verdict != "undetermined" else None
+        p_values = [first[i][0].p if first[i][0].verdict != "undetermined" else None
                     for i in family.decisions]
         adjusted = adjust(family.method, p_values, family.alpha)
         for decision_id, step in zip(family.decisions, adjusted):
@@ -89,26 +90,23 @@ def _decided(plan: Plan, decision: Decision, finding: Finding, branch: _Branch,
     covariance_why = branch.text or "the analysis' own covariance"
     if covariance == own and branch.text:
         covariance_why = f"the analysis' own covariance, kept: {branch.text}"
-    level = numbers.get("ci_level")
+    interval = numbers.get("interval") or {}
+    level = interval.get("level")
     formula, why = basis
-    out = {"term": term, "tier": decision.tier, "covariance": covariance,
+    out = {"column": term, "tier": decision.tier, "covariance": covariance,
            "covariance_why": covariance_why, "estimate": numbers.get("estimate"),
-           "std_error": numbers.get("std_error"), "df": numbers.get("df"),
-           "level": level, "level_why": f"{formula} with {origin}: {why}",
-           "low": numbers.get("ci_low"), "high": numbers.get("ci_high"),
-           "natural": None, "reason": None}
+           "standard_error": numbers.get("standard_error"), "df": numbers.get("df"),
+           "interval": {"low": interval.get("low"), "high": interval.get("high"),
+                        "level": level},
+           "level_why": f"{formula} with {origin}: {why}", "natural": None, "reason": None}
     if term is None:
-        out.update(level=None, reason=(f"a joint test of the levels of {analysis.exposure} "
-                                       "has no single estimate or interval"))
-        out["level_why"] = None
+        out.update(interval=None, level_why=None,
+                   reason=(f"a joint test of the levels of {analysis.exposure} "
+                           "has no single estimate or interval"))
         return out
-    ratio = analysis.family != "gaussian"
-    keys = ("ratio", "ratio_ci_low", "ratio_ci_high") if ratio else ("estimate", "ci_low",
-                                                                       "ci_high")
-    out["natural"] = {"scale": RATIO[analysis.family] if ratio else "difference",
-                      **{name: numbers.get(key)
-                         for name, key in zip(("estimate", "low", "high"), keys)}}
-    if out["low"] is None or out["high"] is None:
+    out["natural"] = numbers.get("natural") or {
+        "scale": NATURAL_SCALE[analysis.family], "estimate": None, "low": None, "high": None}
+    if out["interval"]["low"] is None or out["interval"]["high"] is None:
         out["reason"] = finding.reason if finding.verdict == "undetermined" else (
             "the interval could not be computed")
     return out
@@ -123,7 +121,7 @@ def _effect_tail(plan: Plan, decision: Decision, finding: Finding, fit: Analysis
     if term is None:
         inference = _inference(fit, decision.tier, branch.covariance)
         return "" if inference is None else levels_summary(analysis, inference, alpha)
-    if numbers.get("ci_level") is None or numbers.get("estimate") is None:
+    if numbers.get("interval") is None or numbers.get("estimate") is None:
         return ""
     return f"; {effect_summary(analysis, term, numbers)}"
 
@@ -133,7 +131,7 @@ def _effect_tail(plan: Plan, decision: Decision, finding: Finding, fit: Analysis
 def check_assumption(plan: Plan, assumption: Assumption, fit: AnalysisFit) -> AssumptionOutcome:
     analysis = plan.analysis(assumption.analysis)
     own, named = analysis.covariance.label, ", ".join(assumption.applies_to)
-    statistic, p, tier, triggered, text, undetermined = _assumption_state(
+    test_value, p, tier, triggered, text, undetermined = _assumption_state(
         assumption, analysis, fit, analysis.report_tier)
     if undetermined:
         reason = f"{text}; decisions {named} are undetermined"
@@ -141,29 +139,30 @@ def check_assumption(plan: Plan, assumption: Assumption, fit: AnalysisFit) -> As
         used = assumption.fallback.label if triggered else own
         reason = f"{text}: {used} used for {named}"
     return AssumptionOutcome(
-        id=assumption.id, analysis=analysis.id, check=assumption.check, statistic=statistic,
-        p_value=p, triggered=triggered,
+        id=assumption.id, analysis=analysis.id, check=assumption.check,
+        test_value=test_value, p=p, triggered=triggered,
         covariance=assumption.fallback.label if triggered else own, reason=reason,
         determined=not undetermined, tier=tier)
 
 
 def _assumption_state(assumption: Assumption, analysis: Analysis, fit: AnalysisFit,
                       tier: str) -> tuple[float | None, float | None, str, bool, str, bool]:
-    """(statistic, p, tier, triggered, words, undetermined) of one check."""
+    """(test value, p, tier, triggered, words, undetermined) of one check."""
     if assumption.check == "constant-variance":
         diagnostics = fit.diagnostics
         p = None if diagnostics is None else finite_or_none(diagnostics.breusch_pagan_p)
-        statistic = None if diagnostics is None else finite_or_none(diagnostics.breusch_pagan_statistic)
+        test_value = None if diagnostics is None else finite_or_none(
+            diagnostics.breusch_pagan_statistic)
         tier = analysis.report_tier if diagnostics is None else diagnostics.tier
         if p is None:
             why = diagnostics.reason if diagnostics is not None and diagnostics.reason else (
                 "no diagnostics" if diagnostics is None else "no p-value")
-            return statistic, None, tier, False, (
+            return test_value, None, tier, False, (
                 f"the Breusch–Pagan test on tier {tier} could not be computed ({why})"), True
         triggered = p < assumption.p_below
         words = (f"Breusch–Pagan {fmt_p_phrase('p', p)} on tier {tier} is "
                  f"{'below' if triggered else 'not below'} {fmt_alpha(assumption.p_below)}")
-        return statistic, p, tier, triggered, words, False
+        return test_value, p, tier, triggered, words, False
     tier_fit = fit.tier(tier)
     dispersion = finite_or_none(tier_fit.dispersion)
     if dispersion is None:
@@ -295,9 +294,9 @@ def _family_verdict(plan: Plan, decision: Decision, finding: Finding, branch: _B
     method = METHOD_NAME[family.method]
     label = (f"{family.method} over {', '.join(family.decisions)} at α = "
              f"{fmt_alpha(family.alpha)}")
-    numbers = {**finding.numbers, "adjusted_p": step.adjusted_p, "alpha_used": step.alpha_used,
+    numbers = {**finding.numbers, "p_adjusted": step.p_adjusted, "alpha_used": step.alpha_used,
                "family_alpha": family.alpha, "family_step": step.rank, "tested": step.tested}
-    undetermined = [i for i, s in zip(family.decisions, adjusted) if s.p_value is None]
+    undetermined = [i for i, s in zip(family.decisions, adjusted) if s.p is None]
     others = [i for i in undetermined if i != decision.id]
     note = (f"; {', '.join(others)} undetermined and counted as not rejected"
             if others else "")
@@ -315,18 +314,18 @@ def _family_verdict(plan: Plan, decision: Decision, finding: Finding, branch: _B
 def _family_reason(decision: Decision, finding: Finding, family: Multiplicity, step: Adjusted,
                    adjusted: tuple[Adjusted, ...]) -> str:
     method, alpha = METHOD_NAME[family.method], fmt_alpha(family.alpha)
-    own = fmt_p_phrase(finding.p_name, finding.p_value)
+    own = fmt_p_phrase(finding.p_name, finding.p)
     if not step.tested:
         stopper = family.decisions[step.stopped_by]
         stopped = adjusted[step.stopped_by]
-        their = (fmt_p_phrase("p", stopped.p_value) if stopped.p_value is not None
+        their = (fmt_p_phrase("p", stopped.p) if stopped.p is not None
                  else "its p could not be computed")
         return (f"not tested: the fixed sequence stopped at {stopper}, which was not rejected "
                 f"({their}); its own {own}")
-    verdict_tail = (f"{fmt_p_phrase('adjusted p', step.adjusted_p)} "
+    verdict_tail = (f"{fmt_p_phrase('adjusted p', step.p_adjusted)} "
                     f"{'<' if step.rejected else '≥'} {alpha}")
     held = fmt_alpha(step.alpha_used)
-    below_own = finding.p_value is not None and finding.p_value < step.alpha_used
+    below_own = finding.p is not None and finding.p < step.alpha_used
     if family.method == "fixed-sequence":
         return (f"{own} is {'' if step.rejected else 'not '}below α = {held} at step "
                 f"{step.rank} of the fixed sequence")
@@ -347,5 +346,5 @@ def _family_reason(decision: Decision, finding: Finding, family: Multiplicity, s
 def _holm_stop(family: Multiplicity, adjusted: tuple[Adjusted, ...]) -> str:
     """The first member, in ascending p order, that failed its step."""
     failed = [(s.rank, i) for i, s in zip(family.decisions, adjusted)
-              if (1.0 if s.p_value is None else s.p_value) >= s.alpha_used]
+              if (1.0 if s.p is None else s.p) >= s.alpha_used]
     return min(failed)[1] if failed else "an earlier step"

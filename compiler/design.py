@@ -6,16 +6,18 @@ tier's added terms in the order written — so every tier's design is a prefix o
 
 Column forms and labels (design.md fixes the labels; compiler/columns.py makes them):
   variable    numeric as is (``age``); categorical in treatment coding against the declared
-              reference, one indicator per other level in declared order (``district=hillside``)
+              reference, one indicator per other level in declared order
+              (``district: hillside vs valley``)
   power       x**K (``age^2``)
   log         log x (``log(income)``); every value must be positive
   product     elementwise product of every combination of its factors' columns, first factor
-              outermost (``district=hillside*age``, ``arm=walking*district=market``)
+              outermost (``district: hillside vs valley × age``,
+              ``arm: walking vs usual × district: market vs valley``)
   spline      a natural (restricted) cubic spline with the declared knots t_1 < … < t_k, in the
               truncated-power basis (Devlin & Weeks 1986; Harrell, Regression Modeling
               Strategies, section 2.4.5): k − 1 columns,
-                  spline(x)[1]   = x
-                  spline(x)[j+1] = [ (x − t_j)₊³
+                  spline(x) #1   = x
+                  spline(x) #j+1 = [ (x − t_j)₊³
                                      − (x − t_{k−1})₊³ (t_k − t_j) / (t_k − t_{k−1})
                                      + (x − t_k)₊³ (t_{k−1} − t_j) / (t_k − t_{k−1}) ] / (t_k − t_1)²
                   for j = 1 … k − 2;
@@ -28,7 +30,7 @@ from __future__ import annotations
 import numpy as np
 
 from .bound import BoundData
-from .columns import INTERCEPT, term_labels
+from .columns import INTERCEPT, TIMES, term_labels, variable_labels
 from .fitted import Design
 from .plan import Analysis, Plan, Term, Variable
 from .problems import Exit, Problem, Stop
@@ -234,8 +236,8 @@ class _Builder:
     def variable_columns(self, variable: Variable) -> list[tuple[str, np.ndarray]]:
         if variable.kind == "categorical":
             values = self.raw(variable.name)
-            return [(f"{variable.name}={level}", (values == level).astype(np.float64))
-                    for level in _other_levels(variable)]
+            return [(label, (values == level).astype(np.float64))
+                    for label, level in zip(variable_labels(variable), _other_levels(variable))]
         return [(variable.name, self.numeric(variable.name))]
 
     def term_columns(self, term: Term) -> list[tuple[str, np.ndarray]]:
@@ -252,7 +254,7 @@ class _Builder:
         combined: list[tuple[str, np.ndarray]] = [("", np.ones(self.count))]
         for factor in term.variables:
             sides = self.variable_columns(self.plan.variable(factor))
-            combined = [(f"{a}*{b}" if a else b, va * vb)
+            combined = [(f"{a}{TIMES}{b}" if a else b, va * vb)
                         for a, va in combined for b, vb in sides]
         return combined
 

@@ -58,25 +58,26 @@ def _times(value: float | None, factor: float) -> float | None:
 
 
 def _coefficient(c: Coefficient, factor: float) -> Coefficient:
-    out = replace(c, estimate=_times(c.estimate, factor), std_error=_times(c.std_error, factor),
-                  ci_low=_times(c.ci_low, factor), ci_high=_times(c.ci_high, factor))
+    out = replace(c, estimate=_times(c.estimate, factor),
+                  standard_error=_times(c.standard_error, factor),
+                  low=_times(c.low, factor), high=_times(c.high, factor))
     lost = any(getattr(c, k) is not None and getattr(out, k) is None
-               for k in ("estimate", "std_error", "ci_low", "ci_high"))
+               for k in ("estimate", "standard_error", "low", "high"))
     return replace(out, reason=c.reason or TOO_LARGE) if lost else out
 
 
 def _inference(e: ExposureInference, factors: np.ndarray, columns) -> ExposureInference:
-    return replace(e, coefficients=tuple(_coefficient(c, float(factors[j]))
-                                         for c, j in zip(e.coefficients, columns)))
+    return replace(e, columns=tuple(_coefficient(c, float(factors[j]))
+                                    for c, j in zip(e.columns, columns)))
 
 
 def _tier(t: TierFit, factors: np.ndarray, outcome: float, n: int, gaussian: bool) -> TierFit:
-    labels = [c.term for c in t.coefficients]
-    coefficients = tuple(_coefficient(c, float(factors[j])) for j, c in enumerate(t.coefficients))
-    columns = [labels.index(c.term) for c in t.exposure[0].coefficients] if t.exposure else []
+    labels = [c.column for c in t.columns]
+    coefficients = tuple(_coefficient(c, float(factors[j])) for j, c in enumerate(t.columns))
+    columns = [labels.index(c.column) for c in t.exposure[0].columns] if t.exposure else []
     exposure = tuple(_inference(e, factors, columns) for e in t.exposure)
     if not gaussian:
-        return replace(t, coefficients=coefficients, exposure=exposure)
+        return replace(t, columns=coefficients, exposure=exposure)
     shift = n * math.log(outcome)  # log-likelihood of y = that of ỹ − n·log d_y
     def squared(value):  # d_y² itself may overflow where the product does not
         return _times(_times(value, outcome), outcome)
@@ -88,4 +89,4 @@ def _tier(t: TierFit, factors: np.ndarray, outcome: float, n: int, gaussian: boo
     reason = t.reason
     if any(getattr(t, k) is not None and v is None for k, v in values.items()):
         reason = "; ".join(filter(None, [t.reason, f"the residual SS is {TOO_LARGE}"]))
-    return replace(t, coefficients=coefficients, exposure=exposure, reason=reason, **values)
+    return replace(t, columns=coefficients, exposure=exposure, reason=reason, **values)

@@ -11,6 +11,7 @@ from __future__ import annotations
 import textwrap
 
 from .columns import design_labels, term_labels
+from .words import METHOD_WORDS, method_of
 from .plan import Analysis, Condition, Plan, Population
 from .rules_text import (
     describe_assumption, describe_family, describe_minimum_information, describe_rule,
@@ -91,8 +92,10 @@ def _analysis_json(plan: Plan, analysis: Analysis) -> dict:
     comparisons = []
     for (small, small_labels), (big, big_labels) in zip(
             zip(analysis.tiers, labels), list(zip(analysis.tiers, labels))[1:]):
+        method = method_of(analysis.family, analysis.covariance.kind)
         comparisons.append({"from": small.name, "to": big.name,
-                            "test": comparison_test(analysis),
+                            "method": METHOD_WORDS[method],
+                            "test": "F" if analysis.family == "gaussian" else "chi2",
                             "df_added": len(big_labels) - len(small_labels)})
     return {
         "id": analysis.id, "family": analysis.family, "link": LINK[analysis.family],
@@ -115,11 +118,7 @@ def _analysis_json(plan: Plan, analysis: Analysis) -> dict:
     }
 
 
-def comparison_test(analysis: Analysis) -> str:
-    """The nested test the fit will run: F or LR under the model's own variance, else Wald."""
-    if analysis.covariance.kind != "classical":
-        return "Wald"
-    return "F" if analysis.family == "gaussian" else "LR"
+NBSP = "\u00a0"  # keeps a design column's label on one line when the list is wrapped
 
 
 def _analysis_lines(a: dict) -> list[str]:
@@ -139,12 +138,14 @@ def _analysis_lines(a: dict) -> list[str]:
         adds = (f" adds {', '.join(tier['added_terms'])}" if tier["added_terms"]
                 else " holds the exposure alone")
         lines.append(f"  tier {number} {tier['name']}{adds} — {len(tier['columns'])} columns:")
-        lines.append(_wrap(", ".join(tier["columns"]), "      ", "      "))
+        lines.append(_wrap("; ".join(c.replace(" ", NBSP) for c in tier["columns"]),
+                           "      ", "      ").replace(NBSP, " "))
     if a["comparisons"]:
         lines.append("  nested comparisons:")
         for c in a["comparisons"]:
-            lines.append(f"    {c['from']} → {c['to']}: {c['test']} test of the {c['df_added']} "
-                         f"added column{'s' if c['df_added'] != 1 else ''}")
+            lines.append(f"    {c['from']} → {c['to']}: {c['method']} test of the "
+                         f"{c['df_added']} added column{'s' if c['df_added'] != 1 else ''}, "
+                         f"referred to {'F' if c['test'] == 'F' else 'χ²'}")
     if a["minimum_information"]:
         lines.append(_wrap(a["minimum_information"], "  ", "    "))
     return lines

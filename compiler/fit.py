@@ -9,14 +9,15 @@ Both stop the run with exit 3, naming the analysis, the tier and the culprit.
 
 from __future__ import annotations
 
-import math
 from dataclasses import replace
 
 import numpy as np
 
+from .change import change_between
+from .columns import INTERCEPT
 from .covariance import distinct_covariances, reference_of
 from .fitted import AnalysisFit, Design, ExposureRow, TierFit
-from .inference import finite_or_none
+from .inference import natural_scale
 from .plan import Analysis, Plan
 from .problems import Exit, Problem, Stop
 from . import equilibrate
@@ -39,16 +40,17 @@ def fit(plan: Plan, analysis: Analysis, design: Design) -> AnalysisFit:
             design = equilibrate.scaled(design, scales, gaussian)
         _check_outcome(analysis, design, r, scales)
         _check_rank(plan, analysis, design, r)
-        return mapped_back(_fit(plan, analysis, design, r), scales, gaussian)
+        return mapped_back(_fit(plan, analysis, design, r), scales, gaussian, analysis.confidence)
 
 
-def mapped_back(result: AnalysisFit, scales: np.ndarray, gaussian: bool) -> AnalysisFit:
+def mapped_back(result: AnalysisFit, scales: np.ndarray, gaussian: bool,
+                level: float) -> AnalysisFit:
     """A fit of the equilibrated design on the data's own scales; as it is when none was
     needed."""
     if not equilibrate.needed(scales):
         return result
     result = equilibrate.unscaled(result, scales, gaussian)
-    return replace(result, exposure=exposure_across_tiers(result.tiers, not gaussian))
+    return replace(result, exposure=exposure_across_tiers(result.tiers, result.family, level))
 
 
 def _fit(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -> AnalysisFit:
@@ -77,41 +79,34 @@ def _fit(plan: Plan, analysis: Analysis, design: Design, r: np.ndarray) -> Analy
     return AnalysisFit(
         analysis=analysis.id, family=analysis.family, n=int(design.x.shape[0]),
         tiers=fitted.tiers, comparisons=fitted.comparisons,
-        exposure=exposure_across_tiers(fitted.tiers, analysis.family != "gaussian"),
+        exposure=exposure_across_tiers(fitted.tiers, analysis.family, analysis.confidence),
         diagnostics=diagnostics, events=events, warnings=warnings,
         reference=reference_of(analysis.covariance, analysis.family, fitted.tiers))
 
 
-def exposure_across_tiers(tiers: tuple[TierFit, ...], ratio: bool) -> tuple[ExposureRow, ...]:
-    """Per tier and exposure column, the estimate under the analysis covariance and its change
-    from the first tier, (estimate − first) / |first|; exp(estimate) for binomial/poisson."""
-    first = tiers[0].exposure[0].coefficients
+def exposure_across_tiers(tiers: tuple[TierFit, ...], family: str,
+                          level: float) -> tuple[ExposureRow, ...]:
+    """Per tier and exposure column, the estimate under the analysis covariance, on the
+    natural scale too, and its change from the first tier (compiler.change)."""
+    first = tiers[0].exposure[0].columns
     rows = []
     for tier in tiers:
-        for j, c in enumerate(tier.exposure[0].coefficients):
+        for j, c in enumerate(tier.exposure[0].columns):
             reasons = [c.reason] if c.reason else []
             change = None
             base = first[j].estimate
             if c.estimate is not None and base is not None and base != 0.0:
-                change = finite_or_none((c.estimate - base) / abs(base))
+                change = change_between(base, c.estimate)
             elif base == 0.0:
                 reasons.append("the first tier's estimate is 0: no relative change")
             elif base is None:
                 reasons.append("the first tier's estimate could not be computed")
-            row = dict(tier=tier.name, term=c.term, estimate=c.estimate,
-                       std_error=c.std_error, ci_low=c.ci_low, ci_high=c.ci_high,
-                       change_from_first=change)
-            if ratio:
-                row.update(ratio=_exp(c.estimate), ratio_ci_low=_exp(c.ci_low),
-                           ratio_ci_high=_exp(c.ci_high))
-            rows.append(ExposureRow(**row, reason="; ".join(dict.fromkeys(reasons)) or None))
+            rows.append(ExposureRow(
+                tier=tier.name, column=c.column, estimate=c.estimate,
+                standard_error=c.standard_error, low=c.low, high=c.high, level=level,
+                natural=natural_scale(family, c.estimate, c.low, c.high), change_vs_first=change,
+                reason="; ".join(dict.fromkeys(reasons)) or None))
     return tuple(rows)
-
-
-def _exp(value: float | None) -> float | None:
-    if value is None or value > 709.0:  # exp overflows double precision beyond ~709.78
-        return None
-    return finite_or_none(math.exp(value))
 
 
 def _check_sizes(analysis: Analysis, design: Design) -> None:
@@ -135,7 +130,7 @@ def _check_outcome(analysis: Analysis, design: Design, r: np.ndarray,
     [X | y]: with the intercept as X's first column, the squares in y's column of R below
     the first row add up to ‖y − ȳ‖², judged against ‖y‖ with the rank test's tolerance."""
     n, p = design.x.shape
-    if not design.labels or design.labels[0] != "(intercept)":
+    if not design.labels or design.labels[0] != INTERCEPT:
         return
     y_column = r[: p + 1, p]
     spread = float(np.sqrt(np.sum(y_column[1:] ** 2)))

@@ -114,13 +114,13 @@ def _covariance(t: GaussianTier, covariance: Covariance, sandwich: dict) -> np.n
 def _tier_fit(analysis, design, tier, k, t: GaussianTier, n, tss, covariances, sandwich,
               clusters) -> TierFit:
     labels = design.labels[:t.width]
-    df_resid = n - t.width
+    residual_df = n - t.width
     reason = EXACT_FIT if t.sigma2 is None else None
     inferences = []
     table = None
     for covariance in covariances:
         cov = _covariance(t, covariance, sandwich)
-        df = reference_df(covariance, "gaussian", df_resid, clusters)
+        df = reference_df(covariance, "gaussian", residual_df, clusters)
         joint = "F" if covariance.kind == "classical" else "Wald"
         inferences.append(exposure_inference(covariance.label, labels, t.beta, cov,
                                              design.exposure_columns, df, analysis.confidence,
@@ -137,17 +137,17 @@ def _tier_fit(analysis, design, tier, k, t: GaussianTier, n, tss, covariances, s
     reasons = [reason] if reason else []
     if tss > 0.0:
         r_squared = 1.0 - t.rss / tss
-        if df_resid > 0:
-            adj = 1.0 - (1.0 - r_squared) * (n - 1) / df_resid
+        if residual_df > 0:
+            adj = 1.0 - (1.0 - r_squared) * (n - 1) / residual_df
     else:
         reasons.append("the outcome is constant: R² is undefined")
     return TierFit(
         name=tier.name, terms_added=tuple(term.label for term in _added(analysis, k)),
-        n=n, n_parameters=t.width, df_resid=df_resid,
+        n=n, n_parameters=t.width, residual_df=residual_df,
         log_likelihood=finite_or_none(log_likelihood), aic=aic, bic=bic,
-        coefficients=table, exposure=tuple(inferences), rss=finite_or_none(t.rss),
+        columns=table, exposure=tuple(inferences), rss=finite_or_none(t.rss),
         sigma2=0.0 if t.sigma2 is None else finite_or_none(t.sigma2),
-        r_squared=finite_or_none(r_squared), adj_r_squared=finite_or_none(adj),
+        r_squared=finite_or_none(r_squared), adjusted_r_squared=finite_or_none(adj),
         reason="; ".join(reasons) or None)
 
 
@@ -178,7 +178,7 @@ def _compare(analysis, design, small: GaussianTier, big: GaussianTier, small_nam
         cov = sandwich.get(covariance.label)
         test = wald_test(big.beta, cov, range(small.width, big.width), df, "Wald",
                          covariance.kind)
-        return Comparison(small_name, big_name, "Wald", df_added, test.statistic, test.p_value,
+        return Comparison(small_name, big_name, "Wald", df_added, test.test_value, test.p,
                           test.df_denominator, test.reason)
     f = ((small.rss - big.rss) / df_added) / big.sigma2
     f = max(f, 0.0)  # RSS can only fall as columns are added; a negative is rounding

@@ -70,7 +70,7 @@ def fit_glm(analysis: Analysis, design: Design, covariances: list[Covariance]) -
         sandwich = _sandwich(design, number, robust)
         numbers.append(number)
         sandwiches.append(sandwich)
-        statistics = None if isinstance(fit, str) else (fit.deviance, fit.pearson_chi2)
+        statistics = None if isinstance(fit, str) else (fit.deviance, fit.pearson_x2)
         tiers.append(_tier_fit(analysis, design, tier, k, number, covariances, clusters,
                                fit_warnings, sandwich, null_deviance, statistics))
     comparisons = tuple(
@@ -161,12 +161,12 @@ def _sandwich(design: Design, t: GlmTier, robust: list[Covariance]) -> dict:
 def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
               notes: list[str], sandwich: dict, null_deviance: float | None,
               statistics: tuple[float, float] | None = None) -> TierFit:
-    """``statistics``: (deviance, Pearson χ²) as the IRLS accumulated them at the solution."""
+    """``statistics``: (deviance, Pearson X²) as the IRLS accumulated them at the solution."""
     from .design import tier_terms
 
     n = design.x.shape[0]
     labels = design.labels[:t.width]
-    df_resid = n - t.width
+    residual_df = n - t.width
     usable = t.failure is None
     inferences, table = [], None
     for covariance in covariances:
@@ -174,7 +174,7 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
         if usable:
             cov = t.rinv @ t.rinv.T if covariance.kind == "classical" else sandwich.get(
                 covariance.label)
-        df = reference_df(covariance, analysis.family, df_resid, clusters)
+        df = reference_df(covariance, analysis.family, residual_df, clusters)
         estimates = t.beta if usable else None
         inferences.append(exposure_inference(covariance.label, labels, estimates, cov,
                                              design.exposure_columns, df, analysis.confidence,
@@ -182,11 +182,11 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
         if table is None:
             table = coefficient_table(labels, estimates, cov, df, analysis.confidence,
                                       t.failure)
-    deviance = pearson_chi2 = dispersion = None
+    deviance = pearson_x2 = dispersion = None
     warned = list(notes)
     if usable and statistics is not None:  # never the last iterate's
-        deviance, pearson_chi2 = statistics
-        dispersion = pearson_chi2 / df_resid if df_resid > 0 else None
+        deviance, pearson_x2 = statistics
+        dispersion = pearson_x2 / residual_df if residual_df > 0 else None
         if analysis.family == "poisson" and dispersion is not None and \
                 dispersion > OVERDISPERSION:
             warned.append(f"Pearson dispersion {dispersion:.3g} is above {OVERDISPERSION} "
@@ -194,9 +194,9 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
     aic, bic = information_criteria(t.log_likelihood, n, t.width)
     return TierFit(
         name=tier.name, terms_added=tuple(term.label for term in tier_terms(analysis)[k]),
-        n=n, n_parameters=t.width, df_resid=df_resid, log_likelihood=t.log_likelihood,
-        aic=aic, bic=bic, coefficients=table, exposure=tuple(inferences),
-        deviance=finite_or_none(deviance), null_deviance=null_deviance, pearson_chi2=finite_or_none(pearson_chi2),
+        n=n, n_parameters=t.width, residual_df=residual_df, log_likelihood=t.log_likelihood,
+        aic=aic, bic=bic, columns=table, exposure=tuple(inferences),
+        deviance=finite_or_none(deviance), null_deviance=null_deviance, pearson_x2=finite_or_none(pearson_x2),
         dispersion=finite_or_none(dispersion), converged=usable, iterations=t.iterations,
         reason=t.failure, warnings=tuple(f"tier {tier.name}: {w}" for w in warned))
 
@@ -221,8 +221,8 @@ def _compare(analysis, small: GlmTier, big: GlmTier, small_fit: TierFit, big_fit
     if test == "Wald":
         joint = wald_test(big.beta, sandwich.get(covariance.label),
                           range(small.width, big.width), None, "Wald", covariance.kind)
-        return Comparison(small_fit.name, big_fit.name, "Wald", df_added, joint.statistic,
-                          joint.p_value, None, joint.reason)
+        return Comparison(small_fit.name, big_fit.name, "Wald", df_added, joint.test_value,
+                          joint.p, None, joint.reason)
     if small.log_likelihood is None or big.log_likelihood is None:
         return Comparison(small_fit.name, big_fit.name, "LR", df_added, None, None, None,
                           "a log-likelihood is not finite")

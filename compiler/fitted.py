@@ -20,7 +20,7 @@ class Design:
     x: np.ndarray  # n × p float64 (F order), or design.DesignRows: rows built when asked
     y: np.ndarray  # n float64
     offset: np.ndarray | None  # log of the offset variable, or None
-    labels: tuple[str, ...]  # design column labels, e.g. "(intercept)", "arm=walking", "age^2"
+    labels: tuple[str, ...]  # design column labels, e.g. "intercept", "arm: walking vs usual", "age^2"
     column_term: tuple[str, ...]
     tier_names: tuple[str, ...]
     tier_width: tuple[int, ...]
@@ -31,13 +31,16 @@ class Design:
 
 @dataclass(frozen=True)
 class Coefficient:
-    term: str
+    """One design column's estimate, its test against 0 and its interval (the analysis'
+    confidence level); ``test_value`` is referred to t or z (the fit's reference)."""
+
+    column: str
     estimate: float | None
-    std_error: float | None
-    statistic: float | None  # t (gaussian) or z (GLM)
-    p_value: float | None
-    ci_low: float | None
-    ci_high: float | None
+    standard_error: float | None
+    test_value: float | None  # estimate / standard error
+    p_two_sided: float | None
+    low: float | None
+    high: float | None
     reason: str | None = None
 
 
@@ -45,11 +48,11 @@ class Coefficient:
 class JointTest:
     """A joint test of several coefficients (the exposure levels, or a tier's additions)."""
 
-    test: str  # "F", "Wald" (chi-square), "LR"
-    df: int
-    df_denominator: float | None  # F only
-    statistic: float | None
-    p_value: float | None
+    method: str  # "F" (extra sum of squares), "Wald", "LR" (words.METHOD_WORDS)
+    df_added: int  # the columns tested
+    df_denominator: float | None  # referred to F on (df_added, df_denominator); None: chi2
+    test_value: float | None
+    p: float | None
     reason: str | None = None
 
 
@@ -61,8 +64,8 @@ class ExposureInference:
     Decisions read these, so that a fallback covariance needs no refit.
     """
 
-    covariance: str  # "classical", "HC3", "cluster(site)", ...
-    coefficients: tuple[Coefficient, ...]  # one per exposure column
+    covariance: str  # "classical", "HC3", "clustered by site", ...
+    columns: tuple[Coefficient, ...]  # one per exposure column
     df: float | None
     joint: JointTest | None  # only when the exposure has several columns
 
@@ -73,20 +76,20 @@ class TierFit:
     terms_added: tuple[str, ...]
     n: int
     n_parameters: int
-    df_resid: int
+    residual_df: int
     log_likelihood: float | None
     aic: float | None
     bic: float | None
-    coefficients: tuple[Coefficient, ...]
+    columns: tuple[Coefficient, ...]
     exposure: tuple[ExposureInference, ...]  # the analysis covariance first, then fallbacks
     rss: float | None = None  # gaussian
     sigma2: float | None = None
     r_squared: float | None = None
-    adj_r_squared: float | None = None
+    adjusted_r_squared: float | None = None
     deviance: float | None = None  # binomial, poisson
     null_deviance: float | None = None
-    pearson_chi2: float | None = None
-    dispersion: float | None = None  # Pearson chi-square / df_resid
+    pearson_x2: float | None = None  # Pearson's X² statistic
+    dispersion: float | None = None  # Pearson X² / residual_df
     converged: bool = True
     iterations: int | None = None
     reason: str | None = None  # why some statistic is None
@@ -99,28 +102,49 @@ class Comparison:
 
     from_tier: str
     to_tier: str
-    test: str  # "F" | "LR" | "Wald" (robust covariance)
+    method: str  # "F" | "LR" | "Wald" (robust covariance)
     df_added: int
-    statistic: float | None
-    p_value: float | None
+    test_value: float | None
+    p: float | None
     df_denominator: float | None = None
     reason: str | None = None
 
 
 @dataclass(frozen=True)
+class Natural:
+    """An estimate and its interval on the natural scale: a ``difference`` (identity link),
+    an ``odds ratio`` (logit), a ``rate ratio`` (log); ratios are exp of the model scale."""
+
+    scale: str
+    estimate: float | None
+    low: float | None
+    high: float | None
+
+
+@dataclass(frozen=True)
+class Change:
+    """How an exposure estimate b moved from the first tier's b₁: ``relative`` =
+    |b − b₁| / |b₁| (never negative); ``direction`` "away from zero", "toward zero",
+    "sign reversed" or "none" (compiler.change.change_between)."""
+
+    relative: float | None
+    direction: str
+
+
+@dataclass(frozen=True)
 class ExposureRow:
-    """The exposure across tiers (one row per tier and exposure column)."""
+    """The exposure across tiers (one row per tier and exposure column), under the analysis
+    covariance, its interval at ``level``."""
 
     tier: str
-    term: str
+    column: str
     estimate: float | None
-    std_error: float | None
-    ci_low: float | None
-    ci_high: float | None
-    change_from_first: float | None
-    ratio: float | None = None  # exp(estimate): odds or rate ratio
-    ratio_ci_low: float | None = None
-    ratio_ci_high: float | None = None
+    standard_error: float | None
+    low: float | None
+    high: float | None
+    level: float
+    natural: Natural
+    change_vs_first: Change | None  # None when the first tier's estimate is 0 or missing
     reason: str | None = None
 
 

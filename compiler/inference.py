@@ -10,7 +10,8 @@ import math
 
 import numpy as np
 
-from .fitted import Coefficient, ExposureInference, JointTest
+from .fitted import Coefficient, ExposureInference, JointTest, Natural
+from .words import NATURAL_SCALE
 
 
 def finite_or_none(value) -> float | None:
@@ -21,6 +22,23 @@ def finite_or_none(value) -> float | None:
     return value if math.isfinite(value) else None
 
 
+def exp_or_none(value: float | None) -> float | None:
+    """exp of a model-scale value, None when it is None or exp overflows a double."""
+    if value is None or value > 709.0:  # exp overflows double precision beyond ~709.78
+        return None
+    return finite_or_none(math.exp(value))
+
+
+def natural_scale(family: str, estimate: float | None, low: float | None,
+                  high: float | None) -> Natural:
+    """A model-scale estimate and interval on the natural scale: as they are for an identity
+    link (a difference), exp of each for a log or logit link (an odds or rate ratio)."""
+    scale = NATURAL_SCALE[family]
+    if scale == "difference":
+        return Natural(scale, estimate, low, high)
+    return Natural(scale, exp_or_none(estimate), exp_or_none(low), exp_or_none(high))
+
+
 def critical_value(confidence: float, df: float | None) -> float:
     """The two-sided quantile: t on ``df`` degrees of freedom, or the normal when df is None."""
     from scipy import special  # the functions scipy.stats' t and norm call, minus overhead
@@ -29,10 +47,10 @@ def critical_value(confidence: float, df: float | None) -> float:
     return float(special.ndtri(upper) if df is None else special.stdtrit(df, upper))
 
 
-def two_sided_p(statistic: float, df: float | None) -> float:
+def two_sided_p(test_value: float, df: float | None) -> float:
     from scipy import special
 
-    a = abs(statistic)
+    a = abs(test_value)
     return float(2.0 * (special.ndtr(-a) if df is None else special.stdtr(df, -a)))
 
 
@@ -54,10 +72,10 @@ def coefficient_table(labels, estimates, cov, df: float | None, confidence: floa
             rows.append(Coefficient(label, estimate, None, None, None, None, None, why))
             continue
         se = math.sqrt(variance)
-        statistic = estimate / se
+        test_value = estimate / se
         rows.append(Coefficient(
-            label, estimate, se, finite_or_none(statistic),
-            finite_or_none(two_sided_p(statistic, df)),
+            label, estimate, se, finite_or_none(test_value),
+            finite_or_none(two_sided_p(test_value, df)),
             finite_or_none(estimate - q * se), finite_or_none(estimate + q * se)))
     return tuple(rows)
 
@@ -79,7 +97,7 @@ def covariance_kind(label: str) -> str:
     return "classical" if label == "classical" else "robust"
 
 
-def wald_test(estimates, cov, columns, df: float | None, test: str,
+def wald_test(estimates, cov, columns, df: float | None, method: str,
               covariance: str = "classical") -> JointTest:
     """Joint test that the coefficients in ``columns`` are all zero.
 
@@ -93,11 +111,11 @@ def wald_test(estimates, cov, columns, df: float | None, test: str,
     columns = list(columns)
     q = len(columns)
     if estimates is None or cov is None:
-        return JointTest(test, q, df, None, None, "the coefficients could not be estimated")
+        return JointTest(method, q, df, None, None, "the coefficients could not be estimated")
     b = np.asarray(estimates, dtype=np.float64)[columns]
     v = np.asarray(cov, dtype=np.float64)[np.ix_(columns, columns)]
     if not (np.all(np.isfinite(b)) and np.all(np.isfinite(v))):
-        return JointTest(test, q, df, None, None, "the covariance matrix is not finite")
+        return JointTest(method, q, df, None, None, "the covariance matrix is not finite")
     # A robust covariance can be singular in exact arithmetic yet pass Cholesky in floating
     # point: a clustered one has rank at most (clusters − 1), so testing more columns than
     # that — e.g. cluster-level dummies — would give a statistic of 1e18. Check the rank first
@@ -105,24 +123,24 @@ def wald_test(estimates, cov, columns, df: float | None, test: str,
     rank = int(np.linalg.matrix_rank(v, hermitian=True))
     if rank < q:
         cause = SINGULAR_CAUSE[covariance_kind(covariance)]
-        return JointTest(test, q, df, None, None,
+        return JointTest(method, q, df, None, None,
                          f"the covariance of the {q} tested coefficients is singular (rank "
                          f"{rank}); {cause}")
     try:
         factor = np.linalg.cholesky(v)
     except np.linalg.LinAlgError:
-        return JointTest(test, q, df, None, None,
+        return JointTest(method, q, df, None, None,
                          "the covariance of the tested coefficients is singular")
     w = float(np.sum(np.linalg.solve(factor, b) ** 2))  # ‖L⁻¹b‖² = bᵀV⁻¹b
     if df is None:
-        return JointTest(test, q, None, finite_or_none(w), finite_or_none(special.chdtrc(q, w)))
+        return JointTest(method, q, None, finite_or_none(w), finite_or_none(special.chdtrc(q, w)))
     f = w / q
-    return JointTest(test, q, float(df), finite_or_none(f),
+    return JointTest(method, q, float(df), finite_or_none(f),
                      finite_or_none(special.fdtrc(q, df, f)))
 
 
 def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns,
-                       df: float | None, confidence: float, joint_test: str,
+                       df: float | None, confidence: float, method: str,
                        reason: str | None = None) -> ExposureInference:
     """The exposure's coefficients under one covariance, with the joint test when the exposure
     has several columns."""
@@ -133,8 +151,8 @@ def exposure_inference(covariance: str, labels, estimates, cov, exposure_columns
                               df, confidence, reason)
     joint = None
     if len(columns) > 1:
-        joint = (JointTest(joint_test, len(columns), df, None, None, reason) if reason
-                 else wald_test(estimates, cov, columns, df, joint_test, covariance))
+        joint = (JointTest(method, len(columns), df, None, None, reason) if reason
+                 else wald_test(estimates, cov, columns, df, method, covariance))
     return ExposureInference(covariance, table, None if df is None else float(df), joint)
 
 

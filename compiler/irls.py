@@ -1,7 +1,7 @@
 """Binomial (logit) and Poisson (log) fits by IRLS, one streamed pass over the data per iteration.
 
 Each iteration is a reduction: every batch contributes the TSQR partial of the weighted
-working design [√w·X | √w·z] and its share of the deviance, log-likelihood and Pearson χ²;
+working design [√w·X | √w·z] and its share of the deviance, log-likelihood and Pearson X²;
 the combine step stacks the partials. The weighted least-squares step is solved from R,
 so the accuracy is QR's, never that of the normal equations.
 
@@ -127,7 +127,7 @@ class GlmTierFit:
     deviance: float
     null_deviance: float
     log_likelihood: float
-    pearson_chi2: float
+    pearson_x2: float
     iterations: int
     converged: bool
     closest_boundary: float  # min over rows of min(μ, 1 − μ) (binomial) or μ (poisson)
@@ -166,7 +166,7 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
             break
         if on_pass is not None:
             on_pass(iteration)
-        # the log-likelihood and Pearson χ² are kept from the last pass only: summed there
+        # the log-likelihood and Pearson X² are kept from the last pass only: summed there
         last = [t.refining is not None and t.refining >= REFINE_STEPS or REFINE_STEPS == 0
                 or len(t.deviances) - 1 >= max_iterations for t in active]
         sums = _one_pass(batches(), family, moments, active, last)
@@ -196,7 +196,7 @@ def _close(before: float, after: float, tolerance: float) -> bool:
 
 def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
               tiers: list[_Tier], last: list[bool]) -> list[tuple]:
-    """Per tier: deviance, null deviance, log-likelihood and Pearson χ² (NaN unless ``last``
+    """Per tier: deviance, null deviance, log-likelihood and Pearson X² (NaN unless ``last``
     says the pass may be the tier's last), the closest fitted value to the boundary, and
     the R factor of the weighted working design."""
     nan = float("nan")

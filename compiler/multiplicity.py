@@ -36,8 +36,8 @@ class Adjusted:
     stated order) of the member whose failure stopped it.
     """
 
-    p_value: float | None
-    adjusted_p: float | None
+    p: float | None
+    p_adjusted: float | None
     rejected: bool
     alpha_used: float | None
     rank: int
@@ -57,7 +57,7 @@ def _ascending(p: list[float]) -> list[int]:
 def _outcomes(p_values: Pvalues, adjusted: list[float], alpha: float,
               alpha_used: list[float | None], rank: list[int]) -> tuple[Adjusted, ...]:
     return tuple(
-        Adjusted(p_value=p, adjusted_p=None if p is None else adjusted[i],
+        Adjusted(p=p, p_adjusted=None if p is None else adjusted[i],
                  rejected=p is not None and adjusted[i] < alpha,
                  alpha_used=alpha_used[i], rank=rank[i])
         for i, p in enumerate(p_values))

@@ -129,7 +129,7 @@ class Term:
             return f"log({self.variables[0]})"
         if self.form == "spline":
             return f"spline({self.variables[0]})"
-        return "*".join(self.variables)
+        return " × ".join(self.variables)  # as compiler.columns joins a product's sides
 
 
 @dataclass(frozen=True)
@@ -153,7 +153,7 @@ class Covariance:
 
     @property
     def label(self) -> str:
-        return f"cluster({self.cluster})" if self.kind == "cluster" else self.kind
+        return f"clustered by {self.cluster}" if self.kind == "cluster" else self.kind
 
 
 @dataclass(frozen=True)

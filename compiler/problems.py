@@ -28,6 +28,8 @@ class Exit(IntEnum):
     # a rehearsal whose plan would not decide: a tier that cannot be fitted or a rule left
     # undetermined on the rehearsal data (the bundle is still written: it is the evidence)
     WOULD_NOT_DECIDE = 6
+    # `prespec qualify`: a reference check missed its tolerance (the bundle is still written)
+    QUALIFICATION_MISSED = 7
 
 
 @dataclass(frozen=True)

@@ -56,6 +56,17 @@ class Notes:
             return Cell(DASH, self.mark(why), why)
         return Cell((fmt or num)(value))
 
+    def estimate_cell(self, estimate, low, high, reason: str | None, *, default: str) -> Cell:
+        """"−5.95 (−8.01 to −3.89)": an estimate with its interval in one cell; a dash
+        with its reason when the estimate is missing, the estimate alone (marked) when
+        only the interval is."""
+        if estimate is None:
+            return self.cell(None, reason, default=default)
+        if low is None or high is None:
+            why = reason or "the interval could not be computed"
+            return Cell(f"{num(estimate)} ({DASH})", self.mark(why), why)
+        return Cell(f"{num(estimate)} ({num(low)} to {num(high)})")
+
 
 def _signed(text: str) -> str:
     return text.replace("-", MINUS)
@@ -104,9 +115,23 @@ def percent(share: float) -> str:
     return f"{100 * share:.1f}{THIN}%"
 
 
-def change(share: float) -> str:
-    """A relative change as a signed percentage."""
-    return _signed(f"{100 * share:+.1f}") + f"{THIN}%"
+def change(change: dict) -> str:
+    """A change from the first tier, as its size and direction: "19.8 % away from zero",
+    "4.1 % toward zero", "112 % with the sign reversed", "none"."""
+    if change["direction"] == "none":
+        return "none"
+    size = DASH if change["relative"] is None else f"{100 * change['relative']:.1f}{THIN}%"
+    if change["direction"] == "sign reversed":
+        return f"{size}, sign reversed"
+    return f"{size} {change['direction']}"
+
+
+def test_value(test: str, value: float) -> str:
+    """A statistic with the distribution it is referred to: "t = −5.02", "χ² = 3.1"."""
+    return f"{TEST_SYMBOL.get(test, test)} = {num(value)}"
+
+
+TEST_SYMBOL = {"t": "t", "z": "z", "F": "F", "chi2": "χ²"}
 
 
 def df(x: float) -> str:

@@ -22,3 +22,8 @@ def schema_path(name: str) -> Path:
 
 def templates_dir() -> Path:
     return _folder("templates")
+
+
+def reference_path(name: str) -> Path:
+    """A file of the shipped reference data (`prespec qualify`'s certified problems)."""
+    return _folder("reference") / name

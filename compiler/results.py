@@ -1,4 +1,10 @@
-"""Build the results document (``prespec-results/1``; schemas/results.schema.json).
+"""Build the results document (``prespec-results/2``; schemas/results.schema.json).
+
+Its names are our own or the trade's (shared/design.md, "Results document"): a tier's
+``columns`` each with ``estimate``, ``standard_error``, ``test`` (the distribution the
+``test_value`` is referred to: t, z, F, chi2), ``p_two_sided`` and ``interval: {low, high,
+level}``; comparisons and joint tests with ``df_added``, ``test_value`` and ``p``; the
+exposure across tiers with its ``natural`` scale and ``change_vs_first``.
 
 The document is plain JSON data made from the passes' frozen values, nothing recomputed.
 A number that is not finite never reaches it: it becomes null, and the record it stands in
@@ -13,8 +19,9 @@ from pathlib import Path
 from typing import Callable
 
 from .canonical import canonical_bytes
+from .words import METHOD_WORDS, test_of
 
-FORMAT = "prespec-results/1"
+FORMAT = "prespec-results/2"
 NOT_FINITE = "a value was not finite and is reported as null"
 LINKS = {"gaussian": "identity", "binomial": "logit", "poisson": "log"}
 
@@ -129,58 +136,75 @@ def _finding(problem) -> dict:
             "code": problem.code, "details": json_ready(problem.details or {})}
 
 
-_COEFFICIENT = ("estimate", "std_error", "statistic", "p_value", "ci_low", "ci_high")
+METHODS = METHOD_WORDS
 
 
-def _coefficient(c) -> dict:
-    return _record(c, _COEFFICIENT, term=c.term)
+def _interval(low, high, level) -> dict:
+    return {"low": number(low), "high": number(high), "level": number(level)}
+
+
+def _column(c, test: str, level: float) -> dict:
+    """One design column: its estimate, test against 0 and interval (``c`` a Coefficient)."""
+    out = _record(c, ("estimate", "standard_error", "test_value", "p_two_sided"),
+                  column=c.column, test=test)
+    lost = out["reason"] is None and any(
+        v is not None and number(v) is None for v in (c.low, c.high))
+    out["interval"] = _interval(c.low, c.high, level)
+    if lost:
+        out["reason"] = NOT_FINITE
+    return out
 
 
 def _joint(j) -> dict | None:
     if j is None:
         return None
-    return _record(j, ("df_denominator", "statistic", "p_value"), test=j.test, df=int(j.df),
-                   reference=_joint_reference(j.df_denominator))
+    return _record(j, ("df_denominator", "test_value", "p"),
+                   test=test_of(j.df_denominator, several=True), method=METHODS[j.method],
+                   df_added=int(j.df_added))
 
 
-def _joint_reference(df_denominator) -> str:
-    """A joint test's reference: F with a denominator df (gaussian), else χ² (GLM)."""
-    return "chi2" if df_denominator is None else "F"
+def _inference(e, level: float) -> dict:
+    test = test_of(e.df)
+    return {"covariance": e.covariance, "df": number(e.df), "test": test,
+            "columns": [_column(c, test, level) for c in e.columns],
+            "all_columns": _joint(e.joint)}
 
 
-def _inference(e) -> dict:
-    return {"covariance": e.covariance, "df": number(e.df),
-            "reference": "z" if e.df is None else "t",
-            "coefficients": [_coefficient(c) for c in e.coefficients], "joint": _joint(e.joint)}
+_TIER = ("log_likelihood", "aic", "bic", "rss", "sigma2", "r_squared", "adjusted_r_squared",
+         "deviance", "null_deviance", "pearson_x2", "dispersion")
 
 
-_TIER = ("log_likelihood", "aic", "bic", "rss", "sigma2", "r_squared", "adj_r_squared",
-         "deviance", "null_deviance", "pearson_chi2", "dispersion")
-
-
-def _tier(t) -> dict:
+def _tier(t, level: float) -> dict:
+    """A tier; its columns under the analysis covariance (the first exposure inference)."""
+    own = t.exposure[0] if t.exposure else None
+    test = test_of(own.df) if own is not None else "t"
     return _record(t, _TIER, name=t.name, terms_added=list(t.terms_added),
-                   n_parameters=int(t.n_parameters), df_resid=int(t.df_resid),
+                   n_parameters=int(t.n_parameters), residual_df=int(t.residual_df),
                    converged=bool(t.converged),
                    iterations=None if t.iterations is None else int(t.iterations),
                    warnings=list(t.warnings),
-                   coefficients=[_coefficient(c) for c in t.coefficients],
-                   exposure_inference=[_inference(e) for e in t.exposure])
+                   columns=[_column(c, test, level) for c in t.columns],
+                   exposure_by_covariance=[_inference(e, level) for e in t.exposure])
 
 
 def _comparison(c) -> dict:
-    out = _record(c, ("statistic", "p_value", "df_denominator"), to=c.to_tier, test=c.test,
-                  df_added=int(c.df_added), reference=_joint_reference(c.df_denominator))
+    out = _record(c, ("test_value", "p", "df_denominator"), to=c.to_tier,
+                  test=test_of(c.df_denominator, several=True), method=METHODS[c.method],
+                  df_added=int(c.df_added))
     out["from"] = c.from_tier
     return out
 
 
-_EXPOSURE = ("estimate", "std_error", "ci_low", "ci_high", "change_from_first", "ratio",
-             "ratio_ci_low", "ratio_ci_high")
-
-
 def _exposure(r) -> dict:
-    return _record(r, _EXPOSURE, tier=r.tier, term=r.term)
+    out = _record(r, ("estimate", "standard_error"), tier=r.tier, column=r.column)
+    out["interval"] = _interval(r.low, r.high, r.level)
+    natural = r.natural
+    out["natural"] = {"scale": natural.scale, "estimate": number(natural.estimate),
+                      "low": number(natural.low), "high": number(natural.high)}
+    change = r.change_vs_first
+    out["change_vs_first"] = None if change is None else {
+        "relative": number(change.relative), "direction": change.direction}
+    return out
 
 
 def _diagnostics(d) -> dict | None:
@@ -193,11 +217,12 @@ def _diagnostics(d) -> dict | None:
                    for i in d.influential]
     lost |= any(i["cooks_distance"] is None for i in influential)
     return {"tier": d.tier,
-            "vif": [{"term": term, "vif": number(v)} for term, v in d.vif],
-            "normality": {"test": d.normality_test, "statistic": number(d.normality_statistic),
-                          "p_value": number(d.normality_p)},
-            "breusch_pagan": {"statistic": number(d.breusch_pagan_statistic),
-                              "p_value": number(d.breusch_pagan_p)},
+            "vif": [{"column": column, "vif": number(v)} for column, v in d.vif],
+            "normality": {"method": d.normality_test,
+                          "test_value": number(d.normality_statistic),
+                          "p": number(d.normality_p)},
+            "breusch_pagan": {"test": "chi2", "test_value": number(d.breusch_pagan_statistic),
+                              "p": number(d.breusch_pagan_p)},
             "influential": [i for i in influential if i["cooks_distance"] is not None],
             "reason": d.reason or (NOT_FINITE if lost else None)}
 
@@ -237,14 +262,15 @@ def _analysis(plan, analysis, bound, fit, summarise) -> dict:
                  "rows_in_population": int(flow.rows_in_population),
                  "by_missing": [_step(s) for s in flow.by_missing], "n": int(flow.n)},
         "characteristics": json_ready(summarise(plan, analysis, bound)),
-        **fit_parts(fit),
+        **fit_parts(fit, analysis.confidence),
     }
 
 
-def fit_parts(fit) -> dict:
-    """An analysis' fit as the document stores it (what stored_fits.fits_of reads back)."""
+def fit_parts(fit, level: float) -> dict:
+    """An analysis' fit as the document stores it (what stored_fits.fits_of reads back);
+    ``level`` is the analysis' confidence, the level of every interval."""
     return {"n": int(fit.n), "events": None if fit.events is None else int(fit.events),
-            "tiers": [_tier(t) for t in fit.tiers],
+            "tiers": [_tier(t, level) for t in fit.tiers],
             "comparisons": [_comparison(c) for c in fit.comparisons],
             "exposure": [_exposure(r) for r in fit.exposure],
             "diagnostics": _diagnostics(fit.diagnostics), "warnings": list(fit.warnings),
@@ -254,7 +280,7 @@ def fit_parts(fit) -> dict:
 def _reference(r) -> dict | None:
     if r is None:
         return None
-    return {"distribution": r.distribution, "df": number(r.df), "label": r.label,
+    return {"test": r.distribution, "df": number(r.df), "label": r.label,
             "basis": r.basis}
 
 
@@ -276,6 +302,6 @@ def _verdict(v) -> dict:
 
 def _assumption(o) -> dict:
     return {"id": o.id, "analysis": o.analysis, "check": o.check,
-            "statistic": number(o.statistic), "p_value": number(o.p_value),
+            "test_value": number(o.test_value), "p": number(o.p),
             "triggered": bool(o.triggered), "covariance": o.covariance, "reason": o.reason,
             "determined": bool(o.determined), "tier": o.tier}

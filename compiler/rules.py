@@ -16,17 +16,20 @@ from dataclasses import dataclass, field
 
 from scipy import special
 
+from .change import change_between, in_words
 from .fitted import AnalysisFit, Coefficient, ExposureInference
-from .inference import finite_or_none
+from .inference import exp_or_none, finite_or_none, natural_scale
 from .plan import Analysis, Decision
 from .rules_text import (RATIO, SCALE, fmt_alpha, fmt_num, fmt_p_phrase,
                          fmt_percent, level_percent)
 from .verdicts import VerdictWord
+from .words import METHOD_WORDS
 
 # Every verdict carries these keys, None where they do not apply, so consumers see one shape.
-NUMBER_KEYS = ("estimate", "std_error", "ci_low", "ci_high", "ci_level", "statistic",
-               "p_value", "adjusted_p", "alpha_used", "margin", "scale", "covariance", "df",
-               "ratio", "ratio_ci_low", "ratio_ci_high")
+# ``interval`` is {low, high, level} on the analysis scale, ``natural`` {scale, estimate, low,
+# high} on the natural scale (a difference, an odds or rate ratio).
+NUMBER_KEYS = ("estimate", "standard_error", "interval", "test_value", "p", "p_adjusted",
+               "alpha_used", "margin", "scale", "covariance", "df", "natural")
 
 
 @dataclass(frozen=True)
@@ -34,7 +37,7 @@ class Finding:
     verdict: VerdictWord
     reason: str
     numbers: dict = field(default_factory=dict)
-    p_value: float | None = None  # what a multiplicity procedure uses
+    p: float | None = None  # what a multiplicity procedure uses
     p_name: str = "p"  # how reasons name that p: "two-sided p", "TOST p", ...
 
 
@@ -67,15 +70,6 @@ def _ref(df: float | None) -> _Reference:
     return _Reference(df)
 
 
-def _exp(x: float | None) -> float | None:
-    if x is None:
-        return None
-    try:
-        return finite_or_none(math.exp(x))
-    except OverflowError:
-        return None
-
-
 def _undetermined(reason: str, numbers: dict) -> Finding:
     return Finding("undetermined", reason, numbers)
 
@@ -84,13 +78,10 @@ def effect_summary(analysis: Analysis, term: str, numbers: dict) -> str:
     """The estimate and its interval on the natural scale (a difference, an odds or rate
     ratio), naming the covariance when it is not the analysis' own: what every verdict
     line on an estimate carries."""
-    level = level_percent(numbers["ci_level"])
-    if analysis.family == "gaussian":
-        text = (f"difference {term} {fmt_num(numbers['estimate'])}, {level} CI "
-                f"{fmt_num(numbers['ci_low'])} to {fmt_num(numbers['ci_high'])}")
-    else:
-        text = (f"{RATIO[analysis.family]} {term} {fmt_num(numbers['ratio'])}, {level} CI "
-                f"{fmt_num(numbers['ratio_ci_low'])} to {fmt_num(numbers['ratio_ci_high'])}")
+    level = level_percent(numbers["interval"]["level"])
+    natural = numbers["natural"]
+    text = (f"{natural['scale']} ({term}) {fmt_num(natural['estimate'])}, {level} CI "
+            f"{fmt_num(natural['low'])} to {fmt_num(natural['high'])}")
     covariance = numbers.get("covariance")
     if covariance and covariance != analysis.covariance.label:
         text += f", {covariance} covariance"
@@ -100,31 +91,32 @@ def effect_summary(analysis: Analysis, term: str, numbers: dict) -> str:
 def _coefficient(inference: ExposureInference, term: str, numbers: dict
                  ) -> tuple[Coefficient | None, str | None]:
     """The term's coefficient with a usable estimate and standard error, or why not."""
-    coef = next((c for c in inference.coefficients if c.term == term), None)
+    coef = next((c for c in inference.columns if c.column == term), None)
     if coef is None:
         return None, f"the fit holds no coefficient {term} under {inference.covariance} covariance"
-    numbers.update(estimate=finite_or_none(coef.estimate), std_error=finite_or_none(coef.std_error),
+    numbers.update(estimate=finite_or_none(coef.estimate),
+                   standard_error=finite_or_none(coef.standard_error),
                    covariance=inference.covariance, df=finite_or_none(inference.df))
-    if numbers["estimate"] is None or numbers["std_error"] is None or coef.std_error <= 0:
+    if (numbers["estimate"] is None or numbers["standard_error"] is None
+            or coef.standard_error <= 0):
         why = f": {coef.reason}" if coef.reason else ""
         return None, f"the {term} estimate or its standard error could not be computed{why}"
     return coef, None
 
 
 def _interval(numbers: dict, analysis: Analysis, coverage: float, df: float | None) -> None:
-    """Fill ci_low/ci_high (and the ratios) with the two-sided ``coverage`` interval."""
+    """Fill ``interval`` with the two-sided ``coverage`` interval, and ``natural``."""
     q = float(_ref(df).ppf(0.5 + coverage / 2))
-    est, se = numbers["estimate"], numbers["std_error"]
-    numbers.update(ci_level=coverage, ci_low=finite_or_none(est - q * se), ci_high=finite_or_none(est + q * se))
-    if analysis.family != "gaussian":
-        numbers.update(ratio=_exp(est), ratio_ci_low=_exp(numbers["ci_low"]),
-                       ratio_ci_high=_exp(numbers["ci_high"]))
+    est, se = numbers["estimate"], numbers["standard_error"]
+    low, high = finite_or_none(est - q * se), finite_or_none(est + q * se)
+    numbers.update(interval={"low": low, "high": high, "level": coverage},
+                   natural=vars(natural_scale(analysis.family, est, low, high)).copy())
 
 
-def _one_sided_p(statistic: float, direction: str, df: float | None) -> float:
+def _one_sided_p(test_value: float, direction: str, df: float | None) -> float:
     """H1: effect > null for ``higher`` (upper tail), effect < null for ``lower``."""
     ref = _ref(df)
-    return float(ref.sf(statistic) if direction == "higher" else ref.cdf(statistic))
+    return float(ref.sf(test_value) if direction == "higher" else ref.cdf(test_value))
 
 
 def superiority(analysis: Analysis, decision: Decision, inference: ExposureInference,
@@ -136,19 +128,20 @@ def superiority(analysis: Analysis, decision: Decision, inference: ExposureInfer
     coef, why = _coefficient(inference, term, numbers)
     if coef is None:
         return _undetermined(why, numbers)
-    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
-    statistic = finite_or_none(coef.statistic) if coef.statistic is not None else finite_or_none(est / se)
-    if statistic is None:
-        return _undetermined(f"the {term} test statistic could not be computed", numbers)
+    est, se, df = numbers["estimate"], numbers["standard_error"], inference.df
+    test_value = (finite_or_none(coef.test_value) if coef.test_value is not None
+                  else finite_or_none(est / se))
+    if test_value is None:
+        return _undetermined(f"the {term} test value could not be computed", numbers)
     if decision.direction == "two-sided":
-        p = finite_or_none(coef.p_value)
+        p = finite_or_none(coef.p_two_sided)
         if p is None:
-            p = finite_or_none(2 * float(_ref(df).sf(abs(statistic))))
+            p = finite_or_none(2 * float(_ref(df).sf(abs(test_value))))
         name, coverage = "two-sided p", 1 - alpha
     else:
-        p = finite_or_none(_one_sided_p(statistic, decision.direction, df))
+        p = finite_or_none(_one_sided_p(test_value, decision.direction, df))
         name, coverage = f"one-sided p ({decision.direction})", 1 - 2 * alpha
-    numbers.update(statistic=statistic, p_value=p)
+    numbers.update(test_value=test_value, p=p)
     _interval(numbers, analysis, coverage, df)
     if p is None:
         return _undetermined(f"the {name} for {term} could not be computed", numbers)
@@ -161,14 +154,16 @@ def superiority(analysis: Analysis, decision: Decision, inference: ExposureInfer
 def _joint_superiority(analysis: Analysis, inference: ExposureInference, alpha: float,
                        numbers: dict) -> Finding:
     joint = inference.joint
-    if joint is None or joint.p_value is None or finite_or_none(joint.p_value) is None:
+    if joint is None or joint.p is None or finite_or_none(joint.p) is None:
         why = f": {joint.reason}" if joint is not None and joint.reason else ""
         return _undetermined(f"the joint test of {analysis.exposure} could not be computed"
                              f"{why}", numbers)
-    p = float(joint.p_value)
-    numbers.update(statistic=finite_or_none(joint.statistic), p_value=p, df=joint.df,
-                   df_denominator=finite_or_none(joint.df_denominator), joint_test=joint.test)
-    name = f"joint {joint.test} test of {analysis.exposure} ({joint.df} df): p"
+    p = float(joint.p)
+    numbers.update(test_value=finite_or_none(joint.test_value), p=p, df_added=joint.df_added,
+                   df_denominator=finite_or_none(joint.df_denominator),
+                   test="chi2" if joint.df_denominator is None else "F",
+                   method=METHOD_WORDS[joint.method])
+    name = f"joint {joint.method} test of {analysis.exposure} ({joint.df_added} df): p"
     below = p < alpha
     reason = (f"{fmt_p_phrase(name, p)} is {'' if below else 'not '}below α = "
               f"{fmt_alpha(alpha)} under {inference.covariance} covariance"
@@ -179,14 +174,14 @@ def _joint_superiority(analysis: Analysis, inference: ExposureInference, alpha: 
 def levels_summary(analysis: Analysis, inference: ExposureInference, alpha: float) -> str:
     """Each level's estimate and 1 − α interval, for a joint test's verdict line."""
     parts = []
-    for coef in inference.coefficients:
+    for coef in inference.columns:
         numbers = base_numbers(analysis)
         numbers.update(estimate=finite_or_none(coef.estimate),
-                       std_error=finite_or_none(coef.std_error))
-        if numbers["estimate"] is None or numbers["std_error"] is None:
+                       standard_error=finite_or_none(coef.standard_error))
+        if numbers["estimate"] is None or numbers["standard_error"] is None:
             continue
         _interval(numbers, analysis, 1 - alpha, inference.df)
-        parts.append(effect_summary(analysis, coef.term, numbers))
+        parts.append(effect_summary(analysis, coef.column, numbers))
     return f" ({'; '.join(parts)})" if parts else ""
 
 
@@ -195,7 +190,7 @@ def _to_analysis_scale(analysis: Analysis, value: float) -> float:
 
 
 def _bound_words(analysis: Analysis, value: float | None) -> str:
-    return fmt_num(value if analysis.family == "gaussian" else _exp(value))
+    return fmt_num(value if analysis.family == "gaussian" else exp_or_none(value))
 
 
 def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureInference,
@@ -209,16 +204,17 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
     if coef is None:
         return _undetermined(why, numbers)
     margin = _to_analysis_scale(analysis, decision.margin)
-    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
-    statistic = finite_or_none((est - margin) / se)
-    p = None if statistic is None else finite_or_none(_one_sided_p(statistic, decision.direction, df))
-    numbers.update(statistic=statistic, p_value=p, margin_analysis_scale=margin)
+    est, se, df = numbers["estimate"], numbers["standard_error"], inference.df
+    test_value = finite_or_none((est - margin) / se)
+    p = None if test_value is None else finite_or_none(
+        _one_sided_p(test_value, decision.direction, df))
+    numbers.update(test_value=test_value, p=p, margin_analysis_scale=margin)
     _interval(numbers, analysis, 1 - 2 * alpha, df)
     if decision.direction == "higher":
-        end, bound, word = "lower", numbers["ci_low"], "above"
+        end, bound, word = "lower", numbers["interval"]["low"], "above"
         cleared = bound is not None and bound > margin
     else:
-        end, bound, word = "upper", numbers["ci_high"], "below"
+        end, bound, word = "upper", numbers["interval"]["high"], "below"
         cleared = bound is not None and bound < margin
     numbers["bound"] = bound
     if bound is None:
@@ -226,7 +222,7 @@ def non_inferiority(analysis: Analysis, decision: Decision, inference: ExposureI
                              f"computed", numbers)
     what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
     reason = (f"the {end} end of the {level_percent(1 - 2 * alpha)} interval for the {what} "
-              f"{term}, {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
+              f"({term}), {_bound_words(analysis, bound)}, is {'' if cleared else 'not '}"
               f"{word} the margin {fmt_num(decision.margin)} "
               f"({fmt_p_phrase('non-inferiority p', p)}, α = {fmt_alpha(alpha)}; "
               f"{effect_summary(analysis, term, numbers)})")
@@ -246,22 +242,22 @@ def equivalence(analysis: Analysis, decision: Decision, inference: ExposureInfer
     if coef is None:
         return _undetermined(why, numbers)
     low, high = (_to_analysis_scale(analysis, m) for m in decision.margins)
-    est, se, df = numbers["estimate"], numbers["std_error"], inference.df
+    est, se, df = numbers["estimate"], numbers["standard_error"], inference.df
     ref = _ref(df)
     # two one-sided tests: H1 effect > low, and H1 effect < high
     p_low = finite_or_none(float(ref.sf((est - low) / se)))
     p_high = finite_or_none(float(ref.cdf((est - high) / se)))
     p = None if p_low is None or p_high is None else max(p_low, p_high)
-    numbers.update(p_value=p, p_lower_margin=p_low, p_upper_margin=p_high,
+    numbers.update(p=p, p_lower_margin=p_low, p_upper_margin=p_high,
                    margins_analysis_scale=[low, high])
     _interval(numbers, analysis, 1 - 2 * alpha, df)
-    ci_low, ci_high = numbers["ci_low"], numbers["ci_high"]
-    if ci_low is None or ci_high is None or p is None:
+    lower, upper = numbers["interval"]["low"], numbers["interval"]["high"]
+    if lower is None or upper is None or p is None:
         return _undetermined(f"the interval for {term} could not be computed", numbers)
-    inside = low < ci_low and ci_high < high
+    inside = low < lower and upper < high
     what = "difference" if analysis.family == "gaussian" else RATIO[analysis.family]
-    reason = (f"the {level_percent(1 - 2 * alpha)} interval for the {what} {term}, "
-              f"{_bound_words(analysis, ci_low)} to {_bound_words(analysis, ci_high)}, "
+    reason = (f"the {level_percent(1 - 2 * alpha)} interval for the {what} ({term}), "
+              f"{_bound_words(analysis, lower)} to {_bound_words(analysis, upper)}, "
               f"{'lies' if inside else 'does not lie'} inside the margins "
               f"{fmt_num(decision.margins[0])} to {fmt_num(decision.margins[1])} "
               f"({fmt_p_phrase('TOST p', p)}, α = {fmt_alpha(alpha)}; "
@@ -281,10 +277,10 @@ def tier_selection(analysis: Analysis, decision: Decision, fit: AnalysisFit) -> 
     for reduced, larger in zip(names, names[1:]):
         comparison = next((c for c in fit.comparisons
                            if c.from_tier == reduced and c.to_tier == larger), None)
-        p = None if comparison is None else finite_or_none(comparison.p_value)
+        p = None if comparison is None else finite_or_none(comparison.p)
         needed = None if p is None else p < alpha
-        walked.append({"from": reduced, "to": larger, "p_value": p, "needed": needed,
-                       "test": None if comparison is None else comparison.test})
+        walked.append({"from": reduced, "to": larger, "p": p, "needed": needed,
+                       "method": None if comparison is None else METHOD_WORDS[comparison.method]})
         if broken:
             continue
         if p is None:
@@ -317,16 +313,17 @@ def tier_selection(analysis: Analysis, decision: Decision, fit: AnalysisFit) -> 
 
 def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
                        term: str | None) -> Finding:
-    """Relative change of the exposure estimate (on the analysis scale) between two tiers."""
+    """Relative change of the exposure estimate (on the analysis scale) between two tiers:
+    its size |b − b₁| / |b₁| against the threshold, with the direction it went."""
     numbers = base_numbers(analysis)
     numbers.update(threshold=decision.threshold, from_tier=decision.from_tier,
-                   estimate_from=None, change=None, flagged=None)
+                   estimate_from=None, relative=None, direction=None, flagged=None)
     if term is None:
         return _undetermined(f"{analysis.exposure} has several levels: a change-in-estimate "
                              f"rule must name one", numbers)
     estimates = []
     for tier in (decision.from_tier, decision.tier):
-        coef = next((c for c in fit.tier(tier).coefficients if c.term == term), None)
+        coef = next((c for c in fit.tier(tier).columns if c.column == term), None)
         estimates.append(None if coef is None else finite_or_none(coef.estimate))
     start, end = estimates
     numbers.update(estimate_from=start, estimate=end)
@@ -336,12 +333,15 @@ def change_in_estimate(analysis: Analysis, decision: Decision, fit: AnalysisFit,
     if start == 0:
         return _undetermined(f"the {term} estimate in tier {decision.from_tier} is exactly 0, "
                              f"so a relative change is not defined", numbers)
-    change = (end - start) / abs(start)
-    flagged = abs(change) > decision.threshold
-    numbers.update(change=finite_or_none(change), flagged=flagged)
+    change = change_between(start, end)
+    if change.relative is None:
+        return _undetermined(f"the relative change of the {term} estimate from "
+                             f"{decision.from_tier} to {decision.tier} is not finite", numbers)
+    flagged = change.relative > decision.threshold
+    numbers.update(relative=change.relative, direction=change.direction, flagged=flagged)
     verdict_words = ("confounding flagged" if flagged else "no confounding flagged")
-    reason = (f"the {term} estimate ({SCALE[analysis.family]}) moved from {fmt_num(start)} in "
-              f"{decision.from_tier} to {fmt_num(end)} in {decision.tier}, a change of "
-              f"{fmt_percent(change)} whose size {'exceeds' if flagged else 'does not exceed'} "
-              f"the {fmt_percent(decision.threshold)} threshold: {verdict_words}")
+    reason = (f"the estimate of {term} ({SCALE[analysis.family]}) {in_words(change)}, from "
+              f"{fmt_num(start)} in {decision.from_tier} to {fmt_num(end)} in {decision.tier}: "
+              f"a change whose size {'exceeds' if flagged else 'does not exceed'} "
+              f"the {fmt_percent(decision.threshold)} threshold, {verdict_words}")
     return Finding("supported" if flagged else "not supported", reason, numbers)

@@ -9,6 +9,7 @@ No heavy imports here: `check` must start fast.
 from __future__ import annotations
 
 
+from .columns import level_label
 from .plan import Analysis, Assumption, Decision, Multiplicity, Plan
 
 SCALE = {"gaussian": "difference", "binomial": "log odds ratio", "poisson": "log rate ratio"}
@@ -73,12 +74,20 @@ def exposure_term(plan: Plan, decision: Decision) -> str | None:
     """The design-column label the rule reads, or None when it needs the joint test
     (a categorical exposure of more than two levels with no level named)."""
     analysis = plan.analysis(decision.analysis)
-    others, _ = exposure_levels(plan, analysis)
+    _, reference = exposure_levels(plan, analysis)
     if plan.variable(analysis.exposure).kind != "categorical":
         return analysis.exposure
+    level = exposure_level(plan, decision)
+    return None if level is None else level_label(analysis.exposure, level, reference)
+
+
+def exposure_level(plan: Plan, decision: Decision) -> str | None:
+    """The level of a categorical exposure the rule reads (None: the joint test, or an
+    exposure that is not categorical)."""
+    others, _ = exposure_levels(plan, plan.analysis(decision.analysis))
     if decision.level is not None:
-        return f"{analysis.exposure}={decision.level}"
-    return f"{analysis.exposure}={others[0]}" if len(others) == 1 else None
+        return decision.level
+    return others[0] if len(others) == 1 else None
 
 
 def effect_phrase(plan: Plan, decision: Decision) -> str:
@@ -97,7 +106,7 @@ def effect_phrase(plan: Plan, decision: Decision) -> str:
         return (f"{measure} across the levels of {analysis.exposure} (joint test against "
                 f"{reference})")
     if variable.kind == "categorical":
-        level = term.split("=", 1)[1]
+        level = exposure_level(plan, decision)
         joiner = ("between", "and") if analysis.family == "gaussian" else ("of", "against")
         return f"{measure} {joiner[0]} {analysis.exposure} = {level} {joiner[1]} {reference}"
     if variable.kind == "binary":

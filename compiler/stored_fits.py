@@ -1,8 +1,8 @@
 """The fits as results.json stores them, so that every verdict can be re-derived from the
 document alone, by the decide pass itself, without refitting.
 
-``decide`` reads of a fit only what results.json keeps: each tier's coefficients, exposure
-inferences (covariance, coefficients, df, joint test), dispersion, parameter count and
+``decide`` reads of a fit only what results.json keeps: each tier's columns, the exposure
+under each covariance (covariance, columns, df, the test of all its columns), dispersion, parameter count and
 reason; the nested comparisons; the report tier's Breusch–Pagan test; n and the event
 count. :func:`fits_of` rebuilds those as the frozen values decide takes (the rest of a fit,
 its residuals and design, is not needed and not stored). :func:`settled` gives the decisions
@@ -15,56 +15,63 @@ from __future__ import annotations
 
 from .fitted import (AnalysisFit, Coefficient, Comparison, Diagnostics, ExposureInference,
                      JointTest, TierFit)
+from .results import METHODS, assumption_records, decision_records
+
+
+_METHOD = {words: code for code, words in METHODS.items()}  # the document's words read back
 
 
 def _coefficient(c: dict) -> Coefficient:
-    return Coefficient(term=c["term"], estimate=c["estimate"], std_error=c["std_error"],
-                       statistic=c["statistic"], p_value=c["p_value"], ci_low=c["ci_low"],
-                       ci_high=c["ci_high"], reason=c["reason"])
+    interval = c["interval"]
+    return Coefficient(column=c["column"], estimate=c["estimate"],
+                       standard_error=c["standard_error"], test_value=c["test_value"],
+                       p_two_sided=c["p_two_sided"], low=interval["low"], high=interval["high"],
+                       reason=c["reason"])
 
 
 def _joint(j: dict | None) -> JointTest | None:
     if j is None:
         return None
-    return JointTest(test=j["test"], df=j["df"], df_denominator=j["df_denominator"],
-                     statistic=j["statistic"], p_value=j["p_value"], reason=j["reason"])
+    return JointTest(method=_METHOD[j["method"]], df_added=j["df_added"],
+                     df_denominator=j["df_denominator"], test_value=j["test_value"], p=j["p"],
+                     reason=j["reason"])
 
 
 def _inference(e: dict) -> ExposureInference:
     return ExposureInference(covariance=e["covariance"],
-                             coefficients=tuple(_coefficient(c) for c in e["coefficients"]),
-                             df=e["df"], joint=_joint(e["joint"]))
+                             columns=tuple(_coefficient(c) for c in e["columns"]),
+                             df=e["df"], joint=_joint(e["all_columns"]))
 
 
 def _tier(t: dict, n: int) -> TierFit:
     return TierFit(name=t["name"], terms_added=tuple(t["terms_added"]), n=n,
-                   n_parameters=t["n_parameters"], df_resid=t["df_resid"],
+                   n_parameters=t["n_parameters"], residual_df=t["residual_df"],
                    log_likelihood=t["log_likelihood"], aic=t["aic"], bic=t["bic"],
-                   coefficients=tuple(_coefficient(c) for c in t["coefficients"]),
-                   exposure=tuple(_inference(e) for e in t["exposure_inference"]),
+                   columns=tuple(_coefficient(c) for c in t["columns"]),
+                   exposure=tuple(_inference(e) for e in t["exposure_by_covariance"]),
                    rss=t["rss"], sigma2=t["sigma2"], r_squared=t["r_squared"],
-                   adj_r_squared=t["adj_r_squared"], deviance=t["deviance"],
-                   null_deviance=t["null_deviance"], pearson_chi2=t["pearson_chi2"],
+                   adjusted_r_squared=t["adjusted_r_squared"], deviance=t["deviance"],
+                   null_deviance=t["null_deviance"], pearson_x2=t["pearson_x2"],
                    dispersion=t["dispersion"], converged=t["converged"],
                    iterations=t["iterations"], reason=t["reason"],
                    warnings=tuple(t["warnings"]))
 
 
 def _comparison(c: dict) -> Comparison:
-    return Comparison(from_tier=c["from"], to_tier=c["to"], test=c["test"],
-                      df_added=c["df_added"], statistic=c["statistic"], p_value=c["p_value"],
+    return Comparison(from_tier=c["from"], to_tier=c["to"], method=_METHOD[c["method"]],
+                      df_added=c["df_added"], test_value=c["test_value"], p=c["p"],
                       df_denominator=c["df_denominator"], reason=c["reason"])
 
 
 def _diagnostics(d: dict | None) -> Diagnostics | None:
     if d is None:
         return None
-    return Diagnostics(tier=d["tier"], vif=tuple((v["term"], v["vif"]) for v in d["vif"]),
-                       normality_test=d["normality"]["test"],
-                       normality_statistic=d["normality"]["statistic"],
-                       normality_p=d["normality"]["p_value"],
-                       breusch_pagan_statistic=d["breusch_pagan"]["statistic"],
-                       breusch_pagan_p=d["breusch_pagan"]["p_value"], influential=(),
+    return Diagnostics(tier=d["tier"], vif=tuple((v["column"], v["vif"]) for v in d["vif"]),
+                       normality_test=d["normality"]["method"],
+                       normality_statistic=d["normality"]["test_value"],
+                       normality_p=d["normality"]["p"],
+                       breusch_pagan_statistic=d["breusch_pagan"]["test_value"],
+                       breusch_pagan_p=d["breusch_pagan"]["p"], influential=(),
                        fitted=None, residuals=None, reason=d["reason"])
 
 
@@ -97,7 +104,6 @@ def settled(plan, document: dict) -> tuple[list[dict], list[dict]]:
     """The decisions and assumption outcomes, as results.json records, that the decide pass
     gives on the document's stored numbers (check :func:`mismatch` first)."""
     from .decide import decide
-    from .results import assumption_records, decision_records
 
     verdicts, outcomes = decide(plan, fits_of(document))
     return decision_records(verdicts), assumption_records(outcomes)

@@ -85,10 +85,11 @@ def _fit_streamed(plan, analysis, passes, progress, first: FirstPass) -> Analysi
     return memory_fit.mapped_back(AnalysisFit(
         analysis=analysis.id, family=analysis.family, n=int(first.moments.n), tiers=tiers,
         comparisons=comparisons,
-        exposure=memory_fit.exposure_across_tiers(tiers, not gaussian),
+        exposure=memory_fit.exposure_across_tiers(tiers, analysis.family, analysis.confidence),
         diagnostics=diagnostics, events=events,
         warnings=tuple(w for tier in tiers for w in tier.warnings),
-        reference=reference_of(analysis.covariance, analysis.family, tiers)), scales, gaussian)
+        reference=reference_of(analysis.covariance, analysis.family, tiers)), scales, gaussian,
+        analysis.confidence)
 
 
 class Decomposition:
@@ -377,7 +378,7 @@ def _glm(analysis, passes, first: FirstPass, covariances, report, progress):
     tiers = tuple(
         fit_glm._tier_fit(analysis, header, tier, k, numbers[k], covariances, None, notes[k],
                           sandwiches[k], null_deviance,
-                          statistics=(fits[k].deviance, fits[k].pearson_chi2))
+                          statistics=(fits[k].deviance, fits[k].pearson_x2))
         for k, tier in enumerate(analysis.tiers))
     comparisons = tuple(
         fit_glm._compare(analysis, numbers[k - 1], numbers[k], tiers[k - 1], tiers[k],

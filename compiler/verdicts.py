@@ -13,8 +13,9 @@ class Verdict:
     """The outcome of one decision rule.
 
     ``reason`` is one plain sentence with the numbers in it; ``numbers`` holds the numbers
-    themselves (estimate, ci_low, ci_high, statistic, p_value, adjusted_p, alpha_used,
-    margin, scale, ...), None where a value could not be computed.
+    themselves (estimate, standard_error, interval, natural, test_value, p, p_adjusted,
+    alpha_used, margin, scale, ...: rules.NUMBER_KEYS), None where a value could not be
+    computed.
     """
 
     id: str
@@ -40,10 +41,10 @@ class AssumptionOutcome:
     id: str
     analysis: str
     check: str
-    statistic: float | None
-    p_value: float | None
+    test_value: float | None  # Breusch–Pagan's statistic, or the Pearson dispersion
+    p: float | None
     triggered: bool
     covariance: str  # the covariance the named decisions used
     reason: str
-    determined: bool = True  # False: the statistic could not be computed; decisions undetermined
+    determined: bool = True  # False: the test value could not be computed; decisions undetermined
     tier: str | None = None  # the tier the check was judged on

@@ -53,13 +53,17 @@ def verify(folder, *, data=None, key=None):
     else:
         lines.insert(0, f"{folder}: intact: {len(manifest['files'])} files match the manifest "
                         f"(manifest sha256 {manifest['manifest_sha256'][:12]}), {manifest['stamp']}")
-        lines.append(NOT_OFFLINE)
+        lines.append(_kind(manifest).NOT_OFFLINE if _kind(manifest) else NOT_OFFLINE)
         signature = manifest.get("signature")
         lines.append(_signature_words(signature, key) if signature else UNSIGNED)
         payload.update(stamp=manifest["stamp"], manifest_sha256=manifest["manifest_sha256"],
                        signed=None if not signature else {
                            "public_key_sha256": signature["public_key_sha256"],
                            "key_checked": key is not None})
+        if data is not None and _kind(manifest):
+            raise Stop([Problem(f"{folder}: a qualification bundle has no plan to re-run on "
+                                "--data; run prespec qualify again to qualify anew",
+                                code="not-a-run")], Exit.PLAN_INVALID)
         if data is not None:
             problems, more = rerun(folder, Path(data))
             lines += more
@@ -141,8 +145,10 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
                                   f"{shown}; the manifest says size "
                                   f"{entry.get('size')}, sha256 {str(entry.get('sha256'))[:12]})",
                                   file=name))
+    kind = _kind(manifest)
     problems += [_fail(f"{name}: missing: every bundle holds it, and the manifest does not "
-                       "list it", file=name) for name in REQUIRED if name not in listed]
+                       "list it", file=name) for name in (kind.REQUIRED if kind else REQUIRED)
+                 if name not in listed]
     signature = manifest.get("signature")
     expected = set(listed) | {MANIFEST} | ({SIGNATURE} if signature else set())
     problems += [_fail(f"{name}: not listed in the manifest ({what})", file=name)
@@ -159,7 +165,7 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
     if not problems:  # the files are the sealed ones: do they agree with one another?
         from .crosscheck import check_contents
 
-        found, notes = check_contents(folder, manifest)
+        found, notes = (kind.check_contents if kind else check_contents)(folder, manifest)
         problems += found
     modes, owner_writable = _modes(folder, sorted(expected))
     problems += modes
@@ -169,6 +175,14 @@ def check_bundle(folder: Path, key=None, public=None) -> tuple[list[Problem], li
                      "), as a copy from version control leaves them; the seal covers their "
                      "bytes, which match")
     return problems, notes, manifest
+
+
+def _kind(manifest: dict):
+    """compiler.qualify_verify for a qualification bundle (its own required files and
+    content checks), else None: a run's or rehearsal's bundle."""
+    from . import qualify_verify
+
+    return qualify_verify if qualify_verify.is_qualification(manifest) else None
 
 
 def _modes(folder: Path, names: list[str]) -> tuple[list[Problem], list[str]]:

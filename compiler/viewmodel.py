@@ -96,8 +96,8 @@ def contract_view(results: dict) -> dict:
 
 def assumption_view(a: dict) -> dict:
     return {"id": a["id"], "analysis": a["analysis"], "check": a["check"],
-            "statistic": f.num(a["statistic"]) if a["statistic"] is not None else f.DASH,
-            "p": f.p_value(a["p_value"]) if a["p_value"] is not None else f.DASH,
+            "test_value": f.num(a["test_value"]) if a["test_value"] is not None else f.DASH,
+            "p": f.p_value(a["p"]) if a["p"] is not None else f.DASH,
             "triggered": "yes: fallback taken" if a["triggered"] else "no",
             "covariance": a["covariance"], "reason": a["reason"]}
 

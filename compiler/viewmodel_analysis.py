@@ -20,15 +20,15 @@ FAMILY_WORDS = {"gaussian": "linear regression (gaussian, identity link)",
 # (key, label, families): the fit statistics table, in this order.
 FIT_STATISTICS = (
     ("n_parameters", "parameters", {"gaussian", "binomial", "poisson"}),
-    ("df_resid", "residual df", {"gaussian", "binomial", "poisson"}),
+    ("residual_df", "residual df", {"gaussian", "binomial", "poisson"}),
     ("rss", "residual sum of squares", {"gaussian"}),
     ("sigma2", "residual variance", {"gaussian"}),
     ("r_squared", "R²", {"gaussian"}),
-    ("adj_r_squared", "adjusted R²", {"gaussian"}),
+    ("adjusted_r_squared", "adjusted R²", {"gaussian"}),
     ("deviance", "deviance", {"binomial", "poisson"}),
     ("null_deviance", "null deviance", {"binomial", "poisson"}),
-    ("pearson_chi2", "Pearson χ²", {"binomial", "poisson"}),
-    ("dispersion", "dispersion (Pearson χ² / df)", {"binomial", "poisson"}),
+    ("pearson_x2", "Pearson X²", {"binomial", "poisson"}),
+    ("dispersion", "dispersion (Pearson X² / residual df)", {"binomial", "poisson"}),
     ("log_likelihood", "log-likelihood", {"gaussian", "binomial", "poisson"}),
     ("aic", "AIC", {"gaussian", "binomial", "poisson"}),
     ("bic", "BIC", {"gaussian", "binomial", "poisson"}),
@@ -56,7 +56,6 @@ def _named(label: str | None, column: str, unit: str | None = None) -> str:
 def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes,
                   decisions: list[dict] = ()) -> dict:
     family = a["family"]
-    stat = "t" if family == "gaussian" else "z"
     level = f.level(a["confidence"])
     ratio = family in RATIO_WORD
     decided = decided_rows(a, list(decisions), notes)
@@ -67,13 +66,14 @@ def analysis_view(a: dict, sample: plotting.ResidualSample | None, notes: Notes,
         "facts": _facts(a, decisions),
         "decided": decided,
         "decided_legend": _decided_legend(a) if decided else None,
-        "exposure_legend": (f"Change from first: (estimate − first-tier estimate) / "
-                            f"|first-tier estimate|, on the analysis scale. Intervals at "
-                            f"{level} under {a['covariance']} covariance, the analysis' own"
+        "exposure_legend": (f"Change vs the first tier: its size |b − b₁| / |b₁| (b the "
+                            f"tier's estimate, b₁ the first tier's, on the analysis scale) "
+                            f"and which way b moved. Intervals at {level} under "
+                            f"{a['covariance']} covariance, the analysis' own"
                             + ("; the inference each decision used is in the table below."
                                if decided else ".")),
-        "statistic": stat,
         "level": level,
+        "scale_word": SCALE_WORD[family],
         "tiers": [_tier_view(a, t, notes) for t in a["tiers"]],
         "fit": _fit_table(a, notes),
         "comparisons": [_comparison_row(c, notes) for c in a["comparisons"]],
@@ -135,19 +135,28 @@ def _cell(notes: Notes, value, reason, fmt=None) -> Cell:
 
 def _tier_view(a: dict, t: dict, notes: Notes) -> dict:
     rows = []
-    for c in t["coefficients"]:
+    exposure = {r["column"] for r in a["exposure"]}
+    for c in t["columns"]:
         why = c.get("reason") or t.get("reason")
-        rows.append({"term": c["term"],
-                     "cells": [_cell(notes, c["estimate"], why), _cell(notes, c["std_error"], why),
-                               _cell(notes, c["statistic"], why),
-                               _cell(notes, c["p_value"], why, f.p_value),
-                               _cell(notes, c["ci_low"], why), _cell(notes, c["ci_high"], why)],
-                     "exposure": c["term"] in {r["term"] for r in a["exposure"]}})
+        interval = c["interval"]
+        rows.append({"column": c["column"],
+                     "cells": [_estimate_cell(notes, c["estimate"], interval["low"],
+                                              interval["high"], why),
+                               _cell(notes, c["standard_error"], why),
+                               _cell(notes, c["test_value"], why,
+                                     lambda v, test=c["test"]: f.test_value(test, v)),
+                               _cell(notes, c["p_two_sided"], why, f.p_value)],
+                     "exposure": c["column"] in exposure})
     added = ", ".join(t["terms_added"]) if t["terms_added"] else None
     return {"name": t["name"], "report": t["name"] == a["report_tier"],
             "added": added or "the exposure alone", "rows": rows,
             "converged": t.get("converged", True), "warnings": list(t.get("warnings") or []),
             "reason": t.get("reason")}
+
+
+def _estimate_cell(notes: Notes, estimate, low, high, why) -> Cell:
+    return notes.estimate_cell(estimate, low, high, why,
+                               default="not computed (no reason was recorded)")
 
 
 def _fit_table(a: dict, notes: Notes) -> dict:
@@ -158,7 +167,7 @@ def _fit_table(a: dict, notes: Notes) -> dict:
             continue
         if all(t.get(key) is None and not t.get("reason") for t in a["tiers"]):
             continue  # nothing to show and no tier's own reason: the row does not apply
-        fmt = f.integer if key in ("n_parameters", "df_resid", "iterations") else None
+        fmt = f.integer if key in ("n_parameters", "residual_df", "iterations") else None
         cells = [_cell(notes, t.get(key), t.get("reason"), fmt) for t in a["tiers"]]
         rows.append({"label": label, "cells": cells})
     if family != "gaussian":
@@ -171,42 +180,51 @@ def _fit_table(a: dict, notes: Notes) -> dict:
 def _comparison_row(c: dict, notes: Notes) -> dict:
     df = f"{c['df_added']}" if c.get("df_denominator") is None else (
         f"{c['df_added']}, {f.df(c['df_denominator'])}")
-    return {"step": f"{c['from']} → {c['to']}", "test": c["test"], "df": df,
-            "statistic": _cell(notes, c["statistic"], c.get("reason")),
-            "p": _cell(notes, c["p_value"], c.get("reason"), f.p_value)}
+    return {"step": f"{c['from']} → {c['to']}", "method": c["method"], "df": df,
+            "test_value": _cell(notes, c["test_value"], c.get("reason"),
+                                lambda v: f.test_value(c["test"], v)),
+            "p": _cell(notes, c["p"], c.get("reason"), f.p_value)}
 
 
 def _exposure_row(a: dict, r: dict, notes: Notes) -> dict:
     why = r.get("reason")
     first = r["tier"] == a["tiers"][0]["name"]
-    change = (Cell("(first tier)", numeric=False) if first and r["change_from_first"] is None
-              else _cell(notes, r["change_from_first"], why, f.change))
-    cells = [_cell(notes, r["estimate"], why), _cell(notes, r["std_error"], why),
-             _cell(notes, r["ci_low"], why), _cell(notes, r["ci_high"], why)]
+    change = (Cell("(first tier)") if first else
+              _cell(notes, r["change_vs_first"], why, f.change))
+    interval, natural = r["interval"], r["natural"]
+    cells = [_estimate_cell(notes, r["estimate"], interval["low"], interval["high"], why),
+             _cell(notes, r["standard_error"], why)]
     if a["family"] in RATIO_WORD:
-        cells += [_cell(notes, r["ratio"], why), _cell(notes, r["ratio_ci_low"], why),
-                  _cell(notes, r["ratio_ci_high"], why)]
-    return {"tier": r["tier"], "term": r["term"], "cells": cells, "change": change,
+        cells.append(_estimate_cell(notes, natural["estimate"], natural["low"],
+                                    natural["high"], why))
+    return {"tier": r["tier"], "column": r["column"], "cells": cells, "change": change,
             "report": r["tier"] == a["report_tier"]}
 
 
 def _forest(a: dict) -> Markup:
     ratio = a["family"] in RATIO_WORD
-    several = len({r["term"] for r in a["exposure"]}) > 1
+    columns = list(dict.fromkeys(r["column"] for r in a["exposure"]))
     rows = []
-    terms = list(dict.fromkeys(r["term"] for r in a["exposure"]))
     # Grouped by exposure level, tiers in plan order within each: the eye follows one level
-    # as adjustment grows.
-    for r in sorted(a["exposure"], key=lambda r: terms.index(r["term"])):
-        keys = ("ratio", "ratio_ci_low", "ratio_ci_high") if ratio else (
-            "estimate", "ci_low", "ci_high")
-        label = f"{r['term'].split('=', 1)[-1]} · {r['tier']}" if several else r["tier"]
-        rows.append(plotting.ForestRow(label, *(r[k] for k in keys),
-                                       emphasis=r["tier"] == a["report_tier"]))
+    # as adjustment grows. Every row is on the natural scale (a difference, a ratio).
+    for r in sorted(a["exposure"], key=lambda r: columns.index(r["column"])):
+        natural = r["natural"]
+        label = (f"{_level_of(r['column'])} · {r['tier']}" if len(columns) > 1
+                 else r["tier"])
+        rows.append(plotting.ForestRow(label, natural["estimate"], natural["low"],
+                                       natural["high"], emphasis=r["tier"] == a["report_tier"]))
     axis = (f"{RATIO_WORD[a['family']]}, {outcome_words(a)} (log scale)" if ratio else
             f"difference in {outcome_words(a)}")
     return Markup(plotting.forest(rows, key=f"{a['id']}-exposure", ratio=ratio,
                                   axis_label=axis))
+
+
+def _level_of(column: str) -> str:
+    """A categorical level's column "VAR: LEVEL vs REFERENCE" shortened to "LEVEL" (the
+    axis title names the variable); any other column as it is."""
+    if ": " not in column or " vs " not in column:
+        return column
+    return column.split(": ", 1)[1].rsplit(" vs ", 1)[0]
 
 
 def _forest_caption(a: dict) -> str:
@@ -225,7 +243,7 @@ def _diagnostics(a: dict, sample: plotting.ResidualSample | None,
     residual_label = "standardized residual" if a["family"] == "gaussian" else "Pearson residual"
     view = {
         "absent": None, "tier": d["tier"],
-        "vif": [{"term": v["term"], "vif": _cell(notes, v["vif"], why),
+        "vif": [{"column": v["column"], "vif": _cell(notes, v["vif"], why),
                  "high": v["vif"] is not None and v["vif"] > 10} for v in d["vif"]],
         "tests": _diagnostic_tests(a, d, notes),
         "influential": [{"row_id": i["row_id"], "cooks": Cell(f.num(i["cooks_distance"]))}
@@ -263,11 +281,11 @@ def _diagnostic_tests(a: dict, d: dict, notes: Notes) -> list[dict]:
     rows = []
     for key, label, families in DIAGNOSTIC_TESTS:
         test = d.get(key) or {}
-        if a["family"] not in families and test.get("statistic") is None:
+        if a["family"] not in families and test.get("test_value") is None:
             continue
-        rows.append({"label": label or test.get("test") or "normality test",
-                     "statistic": _cell(notes, test.get("statistic"), why),
-                     "p": _cell(notes, test.get("p_value"), why, f.p_value)})
+        rows.append({"label": label or test.get("method") or "normality test",
+                     "test_value": _cell(notes, test.get("test_value"), why),
+                     "p": _cell(notes, test.get("p"), why, f.p_value)})
     return rows
 
 
@@ -281,10 +299,10 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
                 "notes": notes.items}
     groups = chars.get("groups") or []
     header = [f"{g['level']} (n = {f.integer(g['n'])})" for g in groups]
-    header.append(f"all (n = {f.integer(chars['overall']['n'])})")
+    header.append(f"whole sample (n = {f.integer(chars['whole_sample']['n'])})")
     rows: list[dict] = []
     for v in chars["variables"]:
-        cells = (v.get("groups") or []) + [v["overall"]]
+        cells = (v.get("groups") or []) + [v["whole_sample"]]
         unit = f", {v['unit']}" if v.get("unit") else ""
         name = f"{v['label']} ({v['name']}{unit})" if v.get("label") else f"{v['name']}{unit}"
         role = "" if v.get("role") in (None, "covariate") else v["role"]
@@ -294,15 +312,15 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
         if kind == "continuous":
             rows.append(_row("mean (SD)", cells, _mean_sd, notes))
             if chars.get("quartiles") is not None:
-                rows.append(_row("median [Q1, Q3]", cells, _median_iqr, notes))
+                rows.append(_row("median (IQR q1 to q3)", cells, _median_iqr, notes))
         elif kind == "count" and chars.get("quartiles") is None:  # streamed: no quartiles
             rows.append(_row("mean (SD)", cells, _mean_sd, notes))
         elif kind == "count":
-            rows.append(_row("median [Q1, Q3]", cells, _count_median_iqr, notes))
+            rows.append(_row("median (IQR q1 to q3)", cells, _count_median_iqr, notes))
         elif kind == "binary":
             rows.append(_row("n (%) with 1", cells, _count_share, notes))
         else:
-            for i, lv in enumerate(lv["level"] for lv in v["overall"]["levels"]):
+            for i, lv in enumerate(lv["level"] for lv in v["whole_sample"]["levels"]):
                 per = [_level_stat(c, i) for c in cells]
                 rows.append(_row(f"{lv}, n (%)", per, _count_share, notes, level=True))
         if any(c.get("missing") for c in cells):
@@ -315,7 +333,7 @@ def characteristics_view(a: dict, notes: Notes) -> dict:
                     "The analysed rows have no missing values by construction; the sample "
                     "flow lists the rows excluded for missing values.")
     grouping = (f"by {chars['exposure']}" if chars.get("grouped") else
-                f"overall ({chars.get('exposure')} is not grouped: it is not categorical)")
+                f"as a whole ({chars.get('exposure')} is not grouped: it is not categorical)")
     quartiles = (f"Quartiles by {chars['quartiles']}." if chars.get("quartiles") else
                  "A streamed run sums counts, means, SDs, minima and maxima over the batches; "
                  "it computes no medians or quartiles, which need every value at once.")
@@ -352,7 +370,7 @@ def _mean_sd(c: dict, notes: Notes) -> Cell:
 def _median_iqr(c: dict, notes: Notes, fmt=f.num) -> Cell:
     if c.get("median") is None:
         return _empty(c, notes)
-    return Cell(f"{fmt(c['median'])} [{fmt(c['q1'])}, {fmt(c['q3'])}]")
+    return Cell(f"{fmt(c['median'])} (IQR {fmt(c['q1'])} to {fmt(c['q3'])})")
 
 
 def _count_median_iqr(c: dict, notes: Notes) -> Cell:

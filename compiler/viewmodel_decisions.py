@@ -9,8 +9,6 @@ tables), both are shown, each labelled.
 
 from __future__ import annotations
 
-import math
-
 from . import report_format as f
 from .report_format import Cell, Notes
 
@@ -23,22 +21,26 @@ TEST_WORDS = {"superiority": "superiority", "non-inferiority": "non-inferiority"
 # The rows each kind of rule shows, in this order; a row that does not apply is not printed.
 _ESTIMATE_RULES = ("superiority", "non-inferiority", "equivalence")
 NUMBER_LABELS = {
-    "estimate": "estimate", "std_error": "standard error", "statistic": "statistic",
-    "df": "degrees of freedom", "p_value": "p", "adjusted_p": "adjusted p",
+    "estimate": "estimate", "standard_error": "standard error", "test_value": "test value",
+    "df": "degrees of freedom", "p": "p", "p_adjusted": "adjusted p",
     "alpha_used": "α used", "margin": "margin", "margin_analysis_scale": "margin (analysis scale)",
     "bound": "interval end compared", "ratio": "ratio", "threshold": "threshold",
-    "change": "change", "from_tier": "from tier", "estimate_from": "estimate in from tier",
+    "relative": "change vs from tier", "from_tier": "from tier", "estimate_from": "estimate in from tier",
     "flagged": "flagged", "selected_tier": "selected tier", "report_tier": "report tier",
     "agrees": "agrees with report tier", "p_lower_margin": "p against lower margin",
     "p_upper_margin": "p against upper margin", "margins": "margins",
     "family_alpha": "family α", "family_step": "family step", "tested": "tested",
 }
 # shown by the decided-inference rows, or not numbers at all
-_SHOWN_ELSEWHERE = {"estimate", "std_error", "ci_low", "ci_high", "ci_level", "ratio",
-                    "ratio_ci_low", "ratio_ci_high", "scale", "covariance", "comparisons",
-                    "margins_analysis_scale"}
-_P_KEYS = ("p_value", "adjusted_p", "p_lower_margin", "p_upper_margin")
-_ORDER = ("statistic", "p_value", "adjusted_p", "alpha_used")
+_SHOWN_ELSEWHERE = {"estimate", "standard_error", "interval", "natural", "scale", "covariance",
+                    "comparisons", "margins_analysis_scale", "direction", "test", "method"}
+_P_KEYS = ("p", "p_adjusted", "p_lower_margin", "p_upper_margin")
+_ORDER = ("test_value", "p", "p_adjusted", "alpha_used")
+
+
+def level_of(inference: dict | None) -> float | None:
+    """The level of the interval a decision used (None for a joint test)."""
+    return ((inference or {}).get("interval") or {}).get("level")
 
 
 def article(word: str) -> str:
@@ -52,7 +54,7 @@ def _natural_text(inference: dict | None) -> str | None:
         return None
     if natural.get("low") is None or natural.get("high") is None:
         return f.num(natural["estimate"])
-    return (f"{f.num(natural['estimate'])} ({f.level(inference['level'])} CI "
+    return (f"{f.num(natural['estimate'])} ({f.level(level_of(inference))} CI "
             f"{f.num(natural['low'])} to {f.num(natural['high'])})")
 
 
@@ -77,22 +79,22 @@ def summary_row(d: dict) -> dict:
 
 
 def reported(analysis: dict | None, inference: dict) -> dict | None:
-    """The analysis page's own numbers for the decision's term and tier (its covariance and
-    confidence), or None when the page holds none."""
-    if analysis is None or not inference.get("term"):
+    """The analysis page's own numbers for the decision's column and tier (its covariance
+    and confidence; the interval on the natural scale), or None when the page holds none."""
+    if analysis is None or not inference.get("column"):
         return None
-    tier = next((t for t in analysis["tiers"] if t["name"] == inference["tier"]), None)
-    coef = None if tier is None else next(
-        (c for c in tier["coefficients"] if c["term"] == inference["term"]), None)
-    if coef is None:
+    row = next((r for r in analysis["exposure"] if r["tier"] == inference["tier"]
+                and r["column"] == inference["column"]), None)
+    if row is None:
         return None
     return {"covariance": analysis["covariance"], "level": analysis["confidence"],
-            "std_error": coef["std_error"], "low": coef["ci_low"], "high": coef["ci_high"]}
+            "standard_error": row["standard_error"], "low": row["natural"]["low"],
+            "high": row["natural"]["high"]}
 
 
 def differs(inference: dict, page: dict | None) -> bool:
     return page is not None and (inference["covariance"] != page["covariance"] or
-                                 inference.get("level") != page["level"])
+                                 level_of(inference) != page["level"])
 
 
 def decided_rows(analysis: dict, decisions: list[dict], notes: Notes) -> list[dict]:
@@ -100,7 +102,6 @@ def decided_rows(analysis: dict, decisions: list[dict], notes: Notes) -> list[di
     a line of what decided, a line of this page's own numbers when the covariance or level
     differ, and why."""
     rows = []
-    ratio = analysis["family"] != "gaussian"
     for d in decisions:
         inference = d.get("inference")
         if d["analysis"] != analysis["id"] or inference is None:
@@ -109,21 +110,19 @@ def decided_rows(analysis: dict, decisions: list[dict], notes: Notes) -> list[di
         why = inference.get("reason") or d["reason"]
         lines = [{"label": "decided", "covariance": inference["covariance"],
                   "estimate": notes.cell(natural.get("estimate"), why, default=""),
-                  "std_error": notes.cell(inference.get("std_error"), why, default=""),
-                  "level": (Cell(f.level(inference["level"])) if inference.get("level")
+                  "standard_error": notes.cell(inference.get("standard_error"), why,
+                                               default=""),
+                  "level": (Cell(f.level(level_of(inference))) if level_of(inference)
                             else Cell(f.DASH, notes.mark(why), why)),
                   "interval": _pair(natural.get("low"), natural.get("high"), notes, why)}]
         page = reported(analysis, inference)
         if differs(inference, page):
-            lo, hi = page["low"], page["high"]
-            if ratio and lo is not None and hi is not None:
-                lo, hi = _ratio_ends(lo, hi)
             lines.append({"label": "this page", "covariance": page["covariance"],
                           "estimate": Cell(""),
-                          "std_error": notes.cell(page["std_error"], why, default=""),
+                          "standard_error": notes.cell(page["standard_error"], why, default=""),
                           "level": Cell(f.level(page["level"])),
-                          "interval": _pair(lo, hi, notes, why)})
-        level = f.level(inference["level"]) if inference.get("level") else None
+                          "interval": _pair(page["low"], page["high"], notes, why)})
+        level = f.level(level_of(inference)) if level_of(inference) else None
         why_words = [w for w in (level and f"Level {level} = {inference['level_why']}.",
                                  f"Covariance {inference['covariance']}: "
                                  f"{inference['covariance_why']}.") if w]
@@ -131,7 +130,7 @@ def decided_rows(analysis: dict, decisions: list[dict], notes: Notes) -> list[di
             why_words.append("This page: the analysis' own covariance and confidence, as in "
                              "the tier tables.")
         rows.append({"id": d["id"], "tier": inference["tier"],
-                     "term": inference.get("term") or "(joint test)", "lines": lines,
+                     "column": inference.get("column") or "(joint test)", "lines": lines,
                      "why": " ".join(why_words)})
     return rows
 
@@ -142,17 +141,6 @@ def _pair(low, high, notes: Notes, why: str) -> Cell:
     return Cell(f"{f.num(low)} to {f.num(high)}")
 
 
-def _ratio_ends(low: float, high: float) -> tuple[float | None, float | None]:
-    """Log-scale interval ends as ratios (None where exp overflows)."""
-    def exp(x: float) -> float | None:
-        try:
-            return math.exp(x)
-        except OverflowError:
-            return None
-
-    return exp(low), exp(high)
-
-
 def decision_view(d: dict, analysis: dict | None, notes: Notes) -> dict:
     numbers = d.get("numbers") or {}
     inference = d.get("inference")
@@ -161,9 +149,9 @@ def decision_view(d: dict, analysis: dict | None, notes: Notes) -> dict:
         return f"not computed: {d['reason']}"
 
     def applies(key: str) -> bool:
-        if key == "adjusted_p":
+        if key == "p_adjusted":
             return bool(d.get("multiplicity"))
-        if key in ("statistic", "p_value"):
+        if key in ("test_value", "p"):
             return d["test"] in _ESTIMATE_RULES
         return numbers.get(key) is not None
 
@@ -171,9 +159,11 @@ def decision_view(d: dict, analysis: dict | None, notes: Notes) -> dict:
         value = numbers.get(key)
         if key in _P_KEYS:
             return notes.cell(value, why(key), f.p_value, default="")
-        if key in ("change", "threshold"):
-            return notes.cell(value, why(key), f.percent if key == "threshold" else f.change,
-                              default="")
+        if key == "threshold":
+            return notes.cell(value, why(key), f.percent, default="")
+        if key == "relative":
+            change = {"relative": value, "direction": numbers.get("direction")}
+            return notes.cell(value, why(key), lambda _: f.change(change), default="")
         if key in ("alpha_used", "family_alpha"):
             return notes.cell(value, why(key), f.alpha, default="")
         if key == "family_step" and isinstance(value, (int, float)):
@@ -197,8 +187,8 @@ def decision_view(d: dict, analysis: dict | None, notes: Notes) -> dict:
              and numbers.get(k) is not None]
     for key in keys:
         rows.append((NUMBER_LABELS.get(key, key.replace("_", " ")), value_cell(key)))
-    walk = [{"step": f"{c['from']} → {c['to']}", "test": c.get("test") or "",
-             "p": notes.cell(c.get("p_value"), "the comparison has no p-value", f.p_value,
+    walk = [{"step": f"{c['from']} → {c['to']}", "method": c.get("method") or "",
+             "p": notes.cell(c.get("p"), "the comparison has no p-value", f.p_value,
                              default=""),
              "needed": "—" if c.get("needed") is None else ("yes" if c["needed"] else "no")}
             for c in numbers.get("comparisons") or []]
@@ -222,9 +212,9 @@ def _inference_rows(inference: dict, page: dict | None, notes: Notes,
     ratio = scale not in (None, "difference")
     se_label = "standard error (log scale)" if ratio else "standard error"
     rows.append((f"{se_label}, {inference['covariance']}",
-                 notes.cell(inference.get("std_error"), why, default="")))
-    if inference.get("level") is not None:
-        level = f.level(inference["level"])
+                 notes.cell(inference.get("standard_error"), why, default="")))
+    if level_of(inference) is not None:
+        level = f.level(level_of(inference))
         if natural.get("low") is not None and natural.get("high") is not None:
             rows.append((f"{level} CI, decided", Cell(f"{f.num(natural['low'])} to "
                                                       f"{f.num(natural['high'])}")))
@@ -235,11 +225,9 @@ def _inference_rows(inference: dict, page: dict | None, notes: Notes,
     rows.append(("why this covariance", Cell(inference["covariance_why"], numeric=False)))
     if differs(inference, page):
         lo, hi = page["low"], page["high"]
-        if ratio and lo is not None and hi is not None:
-            lo, hi = _ratio_ends(lo, hi)
         label = f"{f.level(page['level'])} CI, {page['covariance']}, as on the analysis page"
         rows.append((f"{se_label}, {page['covariance']}, as on the analysis page",
-                     notes.cell(page["std_error"], why, default="")))
+                     notes.cell(page["standard_error"], why, default="")))
         rows.append((label, Cell(f"{f.num(lo)} to {f.num(hi)}") if lo is not None and
                      hi is not None else Cell(f.DASH, notes.mark(why), why)))
     return rows

@@ -27,16 +27,16 @@ def _reference(df: float | None):
     return stats.norm if df is None else stats.t(df)
 
 
-def coefficient(term: str, estimate: float | None, std_error: float | None,
+def coefficient(term: str, estimate: float | None, standard_error: float | None,
                 df: float | None = None, confidence: float = 0.95) -> Coefficient:
-    if estimate is None or std_error is None:
-        return Coefficient(term, estimate, std_error, None, None, None, None,
+    if estimate is None or standard_error is None:
+        return Coefficient(term, estimate, standard_error, None, None, None, None,
                            reason="not computable in this fixture")
     ref = _reference(df)
-    statistic = estimate / std_error
+    statistic = estimate / standard_error
     q = float(ref.ppf(0.5 + confidence / 2))
-    return Coefficient(term, estimate, std_error, statistic, float(2 * ref.sf(abs(statistic))),
-                       estimate - q * std_error, estimate + q * std_error)
+    return Coefficient(term, estimate, standard_error, statistic, float(2 * ref.sf(abs(statistic))),
+                       estimate - q * standard_error, estimate + q * standard_error)
 
 
 def inference(effects: dict[str, tuple[float | None, float | None]], covariance="classical",
@@ -48,8 +48,8 @@ def inference(effects: dict[str, tuple[float | None, float | None]], covariance=
 def tier_fit(name: str, *inferences: ExposureInference, n: int = 200, n_parameters: int = 3,
              dispersion: float | None = None) -> TierFit:
     return TierFit(name=name, terms_added=(), n=n, n_parameters=n_parameters,
-                   df_resid=n - n_parameters, log_likelihood=None, aic=None, bic=None,
-                   coefficients=inferences[0].coefficients if inferences else (),
+                   residual_df=n - n_parameters, log_likelihood=None, aic=None, bic=None,
+                   columns=inferences[0].columns if inferences else (),
                    exposure=tuple(inferences), dispersion=dispersion)
 
 

@@ -63,7 +63,7 @@ def _variable(summary, name):
 
 def test_groups_are_the_exposure_levels_with_their_analysed_rows(summary):
     assert [(g["level"], g["n"]) for g in summary["groups"]] == [("usual", 3), ("walking", 2)]
-    assert summary["overall"]["n"] == 5
+    assert summary["whole_sample"]["n"] == 5
 
 
 def test_a_continuous_variable_matches_numpy(summary):
@@ -76,7 +76,7 @@ def test_a_continuous_variable_matches_numpy(summary):
 
 
 def test_the_overall_column_pools_every_group(summary):
-    overall = _variable(summary, "y")["overall"]
+    overall = _variable(summary, "y")["whole_sample"]
     ref = np.array(USUAL["y"] + WALKING["y"])
     assert overall["n"] == 5
     assert overall["mean"] == pytest.approx(np.mean(ref))
@@ -110,12 +110,12 @@ def test_missing_values_are_counted_in_the_population_per_group(summary):
     # p5 (usual) misses y; p8 (walking) misses smoker; p1's values are outside the population
     assert [g["missing"] for g in _variable(summary, "y")["groups"]] == [1, 0]
     assert [g["missing"] for g in _variable(summary, "smoker")["groups"]] == [0, 1]
-    assert _variable(summary, "y")["overall"]["missing"] == 1
+    assert _variable(summary, "y")["whole_sample"]["missing"] == 1
 
 
 def test_a_population_row_without_an_exposure_counts_overall_only(summary):
     assert summary["exposure_missing"] == 1
-    assert summary["overall"]["n_population"] == 8
+    assert summary["whole_sample"]["n_population"] == 8
     assert sum(g["n_population"] for g in summary["groups"]) == 7
 
 
@@ -140,7 +140,7 @@ def test_every_row_analysed_leaves_the_columns_unsorted_and_matches_numpy(tmp_pa
     plan = make_plan({"pid": "identifier", "arm": {"kind": "categorical", "levels": ["a", "b"]},
                       "y": "continuous"}, row_id="pid", analyses=[make_analysis("main", "y", "arm")])
     bound = bind(plan, read(plan, path))
-    overall = _variable(summarise(plan, plan.analyses[0], bound), "y")["overall"]
+    overall = _variable(summarise(plan, plan.analyses[0], bound), "y")["whole_sample"]
     assert list(bound.table.columns["y"]) == y
     assert [overall[k] for k in ("q1", "median", "q3")] == list(np.quantile(y, [0.25, 0.5, 0.75]))
     assert (overall["min"], overall["max"]) == (0.5, 9.0)
@@ -157,7 +157,7 @@ def test_a_continuous_exposure_is_summarised_overall_only(tmp_path):
     assert summary["grouped"] is False and summary["groups"] == []
     dose = _variable(summary, "dose")
     assert dose["role"] == "exposure"
-    assert dose["overall"]["mean"] == pytest.approx(np.mean([1.0, 2.0, 4.0]))
+    assert dose["whole_sample"]["mean"] == pytest.approx(np.mean([1.0, 2.0, 4.0]))
 
 
 def test_an_empty_group_gives_no_statistics_and_says_why(tmp_path):

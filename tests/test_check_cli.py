@@ -45,9 +45,10 @@ def test_the_demo_plan_passes(capsys):
 def test_explain_shows_the_expanded_design_columns(capsys):
     assert main(["check", "--explain", DEMO]) == 0
     out = capsys.readouterr().out
-    assert "guidance=coached" in out
+    assert "guidance: coached vs none" in out
     assert "age^2" in out
-    assert "district=hillside, district=market, district=riverside" in out
+    assert ("district: hillside vs harbour; district: market vs harbour;\n"
+            "      district: riverside vs harbour") in out
 
 
 def test_explain_states_the_sample_rule_and_the_nested_tests(capsys):
@@ -55,8 +56,10 @@ def test_explain_states_the_sample_rule_and_the_nested_tests(capsys):
     out = capsys.readouterr().out
     assert ("complete cases over latency_w8, guidance, latency_w0, age, night_shift, district,"
             in out.replace("\n    ", " "))
-    assert "crude → baseline: F test of the 2 added columns" in out
-    assert "crude → adjusted: LR test of the 3 added columns" in out
+    assert ("crude → baseline: extra sum of squares test of the 2 added columns, referred "
+            "to F") in out
+    assert ("crude → adjusted: likelihood ratio test of the 3 added columns, referred "
+            "to χ²") in out
 
 
 def test_an_invalid_plan_exits_2_with_its_place(tmp_path, capsys):
@@ -86,7 +89,8 @@ def test_json_of_a_valid_plan_carries_the_explanation(capsys):
     doc = json.loads(capsys.readouterr().out)
     assert doc["problems"] == []
     primary = doc["explain"]["analyses"][0]
-    assert primary["tiers"][0]["columns"] == ["(intercept)", "guidance=leaflet", "guidance=coached"]
+    assert primary["tiers"][0]["columns"] == ["intercept", "guidance: leaflet vs none",
+                                              "guidance: coached vs none"]
 
 
 def test_a_missing_plan_file_exits_2(tmp_path, capsys):

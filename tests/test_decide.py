@@ -15,8 +15,8 @@ from compiler.decide import decide
 from compiler.fitted import JointTest
 from compiler.plan import Assumption, Covariance, MinimumInformation, Multiplicity
 
-COACHED = "guidance=coached"
-LEAFLET = "guidance=leaflet"
+COACHED = "guidance: coached vs none"
+LEAFLET = "guidance: leaflet vs none"
 
 
 def only(plan, fit):
@@ -29,7 +29,7 @@ def only(plan, fit):
 def test_two_sided_superiority_uses_the_t_reference_p():
     v = only(plan_with(decision("H1", level="coached")),
              same_exposure_fit({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)}))
-    assert v.numbers["p_value"] == pytest.approx(2 * stats.t(100).sf(2.5))  # scipy reference
+    assert v.numbers["p"] == pytest.approx(2 * stats.t(100).sf(2.5))  # scipy reference
     assert v.verdict == "supported"
 
 
@@ -49,28 +49,28 @@ def test_one_sided_p_is_half_the_two_sided_p_in_the_favoured_direction():
     fit = same_exposure_fit({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)})
     two = only(plan_with(decision("H1", level="coached")), fit)
     one = only(plan_with(decision("H1", level="coached", direction="higher")), fit)
-    assert one.numbers["p_value"] == pytest.approx(two.numbers["p_value"] / 2, rel=1e-12)
+    assert one.numbers["p"] == pytest.approx(two.numbers["p"] / 2, rel=1e-12)
 
 
 def test_one_sided_lower_p_is_half_the_two_sided_p_for_a_negative_estimate():
     fit = same_exposure_fit({COACHED: (-2.0, 0.8), LEAFLET: (0.5, 0.8)})
     two = only(plan_with(decision("H1", level="coached")), fit)
     one = only(plan_with(decision("H1", level="coached", direction="lower")), fit)
-    assert one.numbers["p_value"] == pytest.approx(two.numbers["p_value"] / 2, rel=1e-12)
+    assert one.numbers["p"] == pytest.approx(two.numbers["p"] / 2, rel=1e-12)
 
 
 def test_one_sided_p_against_the_estimate_is_one_minus_half():
     fit = same_exposure_fit({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)})
     v = only(plan_with(decision("H1", level="coached", direction="lower")), fit)
-    assert v.numbers["p_value"] == pytest.approx(1 - stats.t(100).sf(2.5))  # scipy t cdf
+    assert v.numbers["p"] == pytest.approx(1 - stats.t(100).sf(2.5))  # scipy t cdf
     assert v.verdict == "not supported"
 
 
 def test_one_sided_interval_is_the_two_sided_one_minus_two_alpha_interval():
     fit = same_exposure_fit({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)})
     v = only(plan_with(decision("H1", level="coached", direction="higher", alpha=0.025)), fit)
-    assert v.numbers["ci_level"] == pytest.approx(0.95)
-    assert v.numbers["ci_low"] == pytest.approx(2.0 - stats.t(100).ppf(0.975) * 0.8)
+    assert v.numbers["interval"]["level"] == pytest.approx(0.95)
+    assert v.numbers["interval"]["low"] == pytest.approx(2.0 - stats.t(100).ppf(0.975) * 0.8)
 
 
 def test_binomial_superiority_reports_the_odds_ratio_on_the_normal_reference():
@@ -78,8 +78,9 @@ def test_binomial_superiority_reports_the_odds_ratio_on_the_normal_reference():
                             family="binomial")
     v = only(plan_with(decision("S1", level="coached"), family="binomial"), fit)
     z = stats.norm.ppf(0.975)  # scipy normal quantile
-    assert v.numbers["ratio"] == pytest.approx(math.exp(0.4))
-    assert v.numbers["ratio_ci_low"] == pytest.approx(math.exp(0.4 - z * 0.15))
+    assert v.numbers["natural"]["scale"] == "odds ratio"
+    assert v.numbers["natural"]["estimate"] == pytest.approx(math.exp(0.4))
+    assert v.numbers["natural"]["low"] == pytest.approx(math.exp(0.4 - z * 0.15))
     assert v.numbers["scale"] == "log odds ratio"
 
 
@@ -94,7 +95,7 @@ def test_two_sided_rule_on_three_levels_without_level_uses_the_joint_test():
     fit = analysis_fit(tier_fit("full", inference({COACHED: (2, 0.8), LEAFLET: (1, 0.8)},
                                                   joint=joint)))
     v = only(plan_with(decision("H1")), fit)
-    assert v.numbers["p_value"] == 0.0078 and v.verdict == "supported"
+    assert v.numbers["p"] == 0.0078 and v.verdict == "supported"
     assert "joint F test of guidance (2 df)" in v.reason
 
 
@@ -120,7 +121,7 @@ def test_non_inferiority_compares_a_ratio_margin_on_the_log_scale():
                                 direction="higher", margin=0.8, alpha=alpha),
                        family="binomial"), fit)
     lower = est - stats.norm.ppf(1 - alpha) * se  # hand computation, scipy normal quantile
-    assert v.numbers["ci_low"] == pytest.approx(lower)
+    assert v.numbers["interval"]["low"] == pytest.approx(lower)
     assert v.verdict == ("supported" if lower > math.log(0.8) else "not supported")
     assert v.verdict == "supported"
 
@@ -131,7 +132,7 @@ def test_non_inferiority_p_is_the_shifted_one_sided_test():
     v = only(plan_with(decision("N1", test="non-inferiority", level="coached",
                                 direction="higher", margin=0.8, alpha=0.025),
                        family="binomial"), fit)
-    assert v.numbers["p_value"] == pytest.approx(stats.norm.sf((est - math.log(0.8)) / se))
+    assert v.numbers["p"] == pytest.approx(stats.norm.sf((est - math.log(0.8)) / se))
 
 
 def test_non_inferiority_lower_direction_needs_the_upper_end_below_the_margin():
@@ -139,7 +140,7 @@ def test_non_inferiority_lower_direction_needs_the_upper_end_below_the_margin():
     v = only(plan_with(decision("N1", test="non-inferiority", level="coached",
                                 direction="lower", margin=3.0)), fit)
     upper = 1.0 + stats.t(50).ppf(0.95) * 1.0  # scipy t quantile: 2.676
-    assert v.numbers["ci_high"] == pytest.approx(upper)
+    assert v.numbers["interval"]["high"] == pytest.approx(upper)
     assert v.verdict == "supported" and "is below the margin 3" in v.reason
 
 
@@ -150,9 +151,9 @@ def test_equivalence_matches_a_tost_hand_computation():
                                 margins=(-2.0, 2.0), alpha=alpha)), fit)
     q = stats.t(df).ppf(1 - alpha)  # scipy t quantile, t_0.95(40)
     p = max(stats.t(df).sf((est + 2) / se), stats.t(df).cdf((est - 2) / se))
-    assert (v.numbers["ci_low"], v.numbers["ci_high"]) == pytest.approx((est - q * se,
-                                                                          est + q * se))
-    assert v.numbers["p_value"] == pytest.approx(p)
+    interval = v.numbers["interval"]
+    assert (interval["low"], interval["high"]) == pytest.approx((est - q * se, est + q * se))
+    assert v.numbers["p"] == pytest.approx(p)
     assert v.verdict == "supported"
 
 
@@ -219,8 +220,10 @@ def _change(start, end, threshold=0.10):
 def test_change_in_estimate_above_the_threshold_flags_confounding():
     # 10 % threshold: common practice (Mickey & Greenland 1989, from memory)
     v = _change(10.0, 8.5)
-    assert v.numbers["change"] == pytest.approx(-0.15)
+    assert v.numbers["relative"] == pytest.approx(0.15)  # |8.5 − 10| / |10|, by hand
+    assert v.numbers["direction"] == "toward zero"
     assert v.verdict == "supported" and "confounding flagged" in v.reason
+    assert "moved 15% toward zero, from 10 in crude to 8.5 in full" in v.reason
 
 
 def test_change_in_estimate_within_the_threshold_flags_nothing():
@@ -229,7 +232,9 @@ def test_change_in_estimate_within_the_threshold_flags_nothing():
 
 
 def test_change_in_estimate_is_relative_to_the_size_of_a_negative_start():
-    assert _change(-10.0, -12.0).numbers["change"] == pytest.approx(-0.2)
+    v = _change(-10.0, -12.0)
+    assert v.numbers["relative"] == pytest.approx(0.2)  # |−12 + 10| / |−10|, by hand
+    assert v.numbers["direction"] == "away from zero" and "moved 20% away from zero" in v.reason
 
 
 def test_change_from_a_zero_estimate_is_undetermined():
@@ -250,7 +255,7 @@ def _heteroscedastic(bp_p):
 def test_constant_variance_fallback_switches_to_the_named_covariance():
     (v,), _ = _heteroscedastic(0.003)
     assert v.covariance == "HC3"
-    assert v.numbers["p_value"] == pytest.approx(2 * stats.t(100).sf(2.0 / 1.1))
+    assert v.numbers["p"] == pytest.approx(2 * stats.t(100).sf(2.0 / 1.1))
 
 
 def test_constant_variance_fallback_says_why_in_the_branch():
@@ -326,9 +331,9 @@ def _family(method, estimates, mi=MinimumInformation()):
 
 def test_holm_family_verdicts_follow_statsmodels_holm():
     verdicts = _family("holm", (2.6, 2.1))
-    p = [v.numbers["p_value"] for v in verdicts]
+    p = [v.numbers["p"] for v in verdicts]
     reject, corrected, _, _ = multipletests(p, alpha=0.05, method="holm")  # reference library
-    assert [v.numbers["adjusted_p"] for v in verdicts] == pytest.approx(list(corrected))
+    assert [v.numbers["p_adjusted"] for v in verdicts] == pytest.approx(list(corrected))
     assert [v.verdict == "supported" for v in verdicts] == list(reject)
 
 
@@ -369,7 +374,7 @@ def test_undetermined_member_counts_as_not_rejected_and_others_say_so():
                      multiplicity=(Multiplicity("bonferroni", 0.05, ("H1", "H2")),))
     v1, v2 = decide(plan, (same_exposure_fit(effects, df=None),))[0]
     assert v1.verdict == "undetermined"
-    assert v2.numbers["adjusted_p"] == pytest.approx(2 * 2 * stats.norm.sf(3.0))  # m = 2
+    assert v2.numbers["p_adjusted"] == pytest.approx(2 * 2 * stats.norm.sf(3.0))  # m = 2
     assert "H1 undetermined and counted as not rejected" in v2.reason
 
 
@@ -382,3 +387,16 @@ def test_member_undetermined_by_minimum_information_is_counted_as_not_rejected()
     verdicts = _family("holm", (4.0, 4.0), mi=MinimumInformation(n=500))
     assert [v.verdict for v in verdicts] == ["undetermined", "undetermined"]
     assert "counted as not rejected in the Holm family" in verdicts[0].reason
+
+
+def test_change_in_estimate_that_reverses_the_sign_says_so():
+    v = _change(2.0, -1.0)
+    assert v.numbers["relative"] == pytest.approx(1.5)  # |−1 − 2| / |2|, by hand
+    assert v.numbers["direction"] == "sign reversed"
+    assert v.verdict == "supported" and "moved 150% and reversed its sign" in v.reason
+
+
+def test_an_unchanged_estimate_did_not_move():
+    v = _change(-4.0, -4.0)
+    assert v.numbers["relative"] == 0.0 and v.numbers["direction"] == "none"
+    assert v.verdict == "not supported" and "did not move" in v.reason

@@ -15,8 +15,8 @@ from compiler.decide import decide
 from compiler.plan import Assumption, Covariance, Multiplicity
 from compiler.rules_text import fmt_num
 
-COACHED = "guidance=coached"
-LEAFLET = "guidance=leaflet"
+COACHED = "guidance: coached vs none"
+LEAFLET = "guidance: leaflet vs none"
 
 
 def _holm_with_fallback():
@@ -36,11 +36,12 @@ def test_the_decided_inference_is_the_fallback_covariance_at_the_holm_step_level
     h1, h2 = _holm_with_fallback()
     q = stats.t(500).ppf(1 - 0.025 / 2)  # H1 is step 1 of 2: α = 0.025, interval 97.5 %
     assert h1.inference["covariance"] == "HC3"
-    assert h1.inference["std_error"] == pytest.approx(1.25)
-    assert h1.inference["level"] == pytest.approx(0.975)
-    assert (h1.inference["low"], h1.inference["high"]) == pytest.approx(
+    assert h1.inference["standard_error"] == pytest.approx(1.25)
+    assert h1.inference["interval"]["level"] == pytest.approx(0.975)
+    interval = h1.inference["interval"]
+    assert (interval["low"], interval["high"]) == pytest.approx(
         (-7.0 - q * 1.25, -7.0 + q * 1.25))
-    assert h2.inference["level"] == pytest.approx(0.95)  # step 2 of 2: the full α
+    assert h2.inference["interval"]["level"] == pytest.approx(0.95)  # step 2 of 2: the full α
 
 
 def test_the_decided_inference_says_why_the_covariance_and_why_the_level():
@@ -56,7 +57,7 @@ def test_a_one_sided_rule_says_its_interval_is_one_minus_two_alpha():
     fit = same_exposure_fit({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)})
     (v,), _ = decide(plan_with(decision("S1", level="coached", direction="higher",
                                         alpha=0.025)), (fit,))
-    assert v.inference["level"] == pytest.approx(0.95)
+    assert v.inference["interval"]["level"] == pytest.approx(0.95)
     assert v.inference["level_why"].startswith("1 − 2α with α = 0.025, the rule's own")
     assert "lower end" in v.inference["level_why"]
 
@@ -84,10 +85,10 @@ def test_rules_that_read_no_interval_record_no_decided_inference():
 def test_a_gaussian_family_member_line_carries_its_difference_and_interval():
     h1, h2 = _holm_with_fallback()
     q = stats.t(500).ppf(1 - 0.025 / 2)  # scipy t quantile at H1's Holm step
-    expected = (f"difference {COACHED} {fmt_num(-7.0)}, 97.5% CI {fmt_num(-7.0 - q * 1.25)} "
+    expected = (f"difference ({COACHED}) {fmt_num(-7.0)}, 97.5% CI {fmt_num(-7.0 - q * 1.25)} "
                 f"to {fmt_num(-7.0 + q * 1.25)}, HC3 covariance")
     assert expected in h1.reason
-    assert f"difference {LEAFLET} {fmt_num(-1.4)}, 95% CI" in h2.reason
+    assert f"difference ({LEAFLET}) {fmt_num(-1.4)}, 95% CI" in h2.reason
 
 
 def test_a_binomial_family_member_line_carries_its_odds_ratio():
@@ -98,7 +99,7 @@ def test_a_binomial_family_member_line_carries_its_odds_ratio():
                      multiplicity=(Multiplicity("bonferroni", 0.05, ("S1", "S2")),))
     s1, _ = decide(plan, (fit,))[0]
     z = stats.norm.ppf(1 - 0.025 / 2)  # Bonferroni: each at 0.025, interval 97.5 %
-    assert (f"odds ratio {COACHED} {fmt_num(math.exp(0.4))}, 97.5% CI "
+    assert (f"odds ratio ({COACHED}) {fmt_num(math.exp(0.4))}, 97.5% CI "
             f"{fmt_num(math.exp(0.4 - z * 0.15))} to {fmt_num(math.exp(0.4 + z * 0.15))}"
             in s1.reason)
 
@@ -108,7 +109,7 @@ def test_a_non_inferiority_line_carries_the_estimate_as_well_as_the_bound():
     (v,), _ = decide(plan_with(decision("N1", test="non-inferiority", level="coached",
                                         direction="lower", margin=3.0)), (fit,))
     q = stats.t(50).ppf(0.95)  # 1 − 2α interval at α = 0.05
-    assert (f"difference {COACHED} 1, 90% CI {fmt_num(1 - q)} to {fmt_num(1 + q)}"
+    assert (f"difference ({COACHED}) 1, 90% CI {fmt_num(1 - q)} to {fmt_num(1 + q)}"
             in v.reason)
 
 
@@ -119,8 +120,8 @@ def test_a_joint_test_line_carries_each_levels_estimate():
     fit = analysis_fit(tier_fit("full", inference({COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)},
                                                   joint=joint)))
     (v,), _ = decide(plan_with(decision("J1")), (fit,))
-    assert f"difference {COACHED} 2, 95% CI" in v.reason
-    assert f"difference {LEAFLET} 0.5, 95% CI" in v.reason
+    assert f"difference ({COACHED}) 2, 95% CI" in v.reason
+    assert f"difference ({LEAFLET}) 0.5, 95% CI" in v.reason
 
 
 # ---- point 3: the fixed sequence names the p that stopped it ----------------------------

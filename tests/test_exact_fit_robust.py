@@ -43,8 +43,8 @@ def test_a_robust_comparison_into_an_exact_fit_is_null_with_the_reason(data, cov
     _, result = _fit(WAMPLER[data], covariance)
     into_exact = result.comparisons[-1]
     assert result.tier("quintic").reason.startswith("exact fit")
-    assert into_exact.test == "Wald"
-    assert into_exact.statistic is None and into_exact.p_value is None
+    assert into_exact.method == "Wald"
+    assert into_exact.test_value is None and into_exact.p is None
     assert "exact fit" in into_exact.reason and "quintic" in into_exact.reason
 
 
@@ -64,7 +64,7 @@ def test_a_singular_heteroscedasticity_consistent_covariance_names_its_own_cause
     v = np.outer([1.0, 2.0], [1.0, 2.0])
     assert np.linalg.matrix_rank(v, hermitian=True) == 1  # reference library
     hc3 = wald_test(np.array([0.5, 0.3]), v, [0, 1], 30.0, "Wald", "HC3")
-    clustered = wald_test(np.array([0.5, 0.3]), v, [0, 1], 30.0, "Wald", "cluster(site)")
-    assert hc3.statistic is None and "singular (rank 1)" in hc3.reason
+    clustered = wald_test(np.array([0.5, 0.3]), v, [0, 1], 30.0, "Wald", "clustered by site")
+    assert hc3.test_value is None and "singular (rank 1)" in hc3.reason
     assert "cluster" not in hc3.reason and "heteroscedasticity-consistent" in hc3.reason
     assert "clusters − 1" in clustered.reason

@@ -1,8 +1,8 @@
 """Design-column labels from the plan alone, and the explanation's account of each analysis.
 
-The label forms are the ones design.md fixes: `(intercept)`, `VAR`, `VAR=LEVEL` (treatment
-coding against the reference, levels in declared order), `VAR^K`, `log(VAR)`, products `A*B`
-with each side labelled, and `spline(VAR)[j]` for the k − 1 columns of a natural cubic spline
+The label forms are the ones design.md fixes: `intercept`, `VAR`, `VAR: LEVEL vs REFERENCE` (treatment
+coding against the reference, levels in declared order), `VAR^K`, `log(VAR)`, products `A × B`
+with each side labelled, and `spline(VAR) #j` for the k − 1 columns of a natural cubic spline
 with k knots (the truncated-power basis: Harrell, Regression Modeling Strategies, 2.4.5).
 """
 
@@ -55,23 +55,26 @@ def plan(tmp_path):
 
 def test_a_categorical_exposure_expands_against_its_declared_reference(tmp_path):
     p = plan(tmp_path)
-    assert design_labels(p, p.analysis("main"))[0] == ("(intercept)", "arm=usual", "arm=slow")
+    assert design_labels(p, p.analysis("main"))[0] == ("intercept", "arm: usual vs brisk",
+                                                       "arm: slow vs brisk")
 
 
 def test_power_log_and_spline_columns(tmp_path):
     p = plan(tmp_path)
     shaped = design_labels(p, p.analysis("main"))[1]
-    assert shaped[3:] == ("age^3", "log(income)", "spline(age)[1]", "spline(age)[2]",
-                          "spline(age)[3]")
+    assert shaped[3:] == ("age^3", "log(income)", "spline(age) #1", "spline(age) #2",
+                          "spline(age) #3")
 
 
 def test_products_combine_every_column_of_each_side_first_factor_outermost(tmp_path):
     p = plan(tmp_path)
     modified = design_labels(p, p.analysis("main"))[2]
     assert modified[8:] == (
-        "district=hillside*age", "district=market*age",
-        "arm=usual*district=hillside", "arm=usual*district=market",
-        "arm=slow*district=hillside", "arm=slow*district=market",
+        "district: hillside vs harbour × age", "district: market vs harbour × age",
+        "arm: usual vs brisk × district: hillside vs harbour",
+        "arm: usual vs brisk × district: market vs harbour",
+        "arm: slow vs brisk × district: hillside vs harbour",
+        "arm: slow vs brisk × district: market vs harbour",
         "smoker")
 
 
@@ -84,20 +87,20 @@ def test_each_tier_is_a_prefix_of_the_next(tmp_path):
 def test_each_column_knows_its_term(tmp_path):
     p = plan(tmp_path)
     terms = column_terms(p, p.analysis("main"))
-    assert terms[:3] == ("(intercept)", "arm", "arm")
-    assert terms.count("district*age") == 2
+    assert terms[:3] == ("intercept", "arm", "arm")
+    assert terms.count("district × age") == 2
 
 
 def test_a_binary_exposure_is_one_column(tmp_path):
     p = plan(tmp_path)
-    assert design_labels(p, p.analysis("counts"))[0] == ("(intercept)", "smoker")
+    assert design_labels(p, p.analysis("counts"))[0] == ("intercept", "smoker")
 
 
 def test_a_robust_covariance_makes_the_nested_test_a_wald_test(tmp_path):
     doc = explain_json(plan(tmp_path))
     counts = doc["analyses"][1]
-    assert counts["comparisons"] == [{"from": "crude", "to": "adjusted", "test": "Wald",
-                                      "df_added": 1}]
+    assert counts["comparisons"] == [{"from": "crude", "to": "adjusted", "method": "Wald",
+                                      "test": "chi2", "df_added": 1}]
 
 
 def test_comparisons_count_the_columns_a_tier_adds(tmp_path):
@@ -113,7 +116,7 @@ def test_the_complete_case_set_covers_every_tier_and_the_cluster(tmp_path):
 def test_the_explanation_names_the_family_and_link(tmp_path):
     text = explain(plan(tmp_path))
     assert "Analysis counts: n by smoker, poisson family, log link" in text
-    assert "covariance: cluster(site)" in text
+    assert "covariance: clustered by site" in text
 
 
 def test_population_rules_are_written_with_plain_numbers():

@@ -57,9 +57,9 @@ def _reference(columns):
 
 
 def _agree(found, expected, factors, digits=12):
-    for c, b, se, f in zip(found.coefficients, expected.params, expected.bse, factors):
-        assert nist.lre(c.estimate, b * f) >= digits, c.term
-        assert nist.lre(c.std_error, se * f) >= digits, c.term
+    for c, b, se, f in zip(found.columns, expected.params, expected.bse, factors):
+        assert nist.lre(c.estimate, b * f) >= digits, c.column
+        assert nist.lre(c.standard_error, se * f) >= digits, c.column
 
 
 @pytest.mark.parametrize("factor", [1e154, 1e-160, 2.0 ** 600])

@@ -14,6 +14,7 @@ from scipy import stats
 import fitkit as fk
 from compiler.design import design
 from compiler.fit import fit
+from compiler.fitted import Natural
 from compiler.plan import Assumption, Covariance, Variable
 from compiler.problems import Exit, Stop
 
@@ -54,15 +55,15 @@ def test_every_tier_matches_statsmodels_ols(fitted):
     d, result = fitted
     for width, tier in zip(d.tier_width, result.tiers):
         ols = sm.OLS(d.y, d.x[:, :width]).fit()  # reference library
-        np.testing.assert_allclose([c.estimate for c in tier.coefficients], ols.params, rtol=1e-9)
-        np.testing.assert_allclose([c.std_error for c in tier.coefficients], ols.bse, rtol=1e-9)
-        np.testing.assert_allclose([c.statistic for c in tier.coefficients], ols.tvalues,
+        np.testing.assert_allclose([c.estimate for c in tier.columns], ols.params, rtol=1e-9)
+        np.testing.assert_allclose([c.standard_error for c in tier.columns], ols.bse, rtol=1e-9)
+        np.testing.assert_allclose([c.test_value for c in tier.columns], ols.tvalues,
                                    rtol=1e-9)
-        np.testing.assert_allclose([c.p_value for c in tier.coefficients], ols.pvalues,
+        np.testing.assert_allclose([c.p_two_sided for c in tier.columns], ols.pvalues,
                                    rtol=1e-7, atol=1e-300)
         ci = ols.conf_int(0.05)
-        np.testing.assert_allclose([c.ci_low for c in tier.coefficients], ci[:, 0], rtol=1e-9)
-        np.testing.assert_allclose([c.ci_high for c in tier.coefficients], ci[:, 1], rtol=1e-9)
+        np.testing.assert_allclose([c.low for c in tier.columns], ci[:, 0], rtol=1e-9)
+        np.testing.assert_allclose([c.high for c in tier.columns], ci[:, 1], rtol=1e-9)
 
 
 def test_tier_summaries_match_statsmodels_ols(fitted):
@@ -72,11 +73,11 @@ def test_tier_summaries_match_statsmodels_ols(fitted):
         assert tier.rss == pytest.approx(ols.ssr, rel=1e-10)
         assert tier.sigma2 == pytest.approx(ols.scale, rel=1e-10)
         assert tier.r_squared == pytest.approx(ols.rsquared, rel=1e-10)
-        assert tier.adj_r_squared == pytest.approx(ols.rsquared_adj, rel=1e-10)
+        assert tier.adjusted_r_squared == pytest.approx(ols.rsquared_adj, rel=1e-10)
         assert tier.log_likelihood == pytest.approx(ols.llf, rel=1e-10)
         assert tier.aic == pytest.approx(ols.aic, rel=1e-10)
         assert tier.bic == pytest.approx(ols.bic, rel=1e-10)
-        assert tier.df_resid == ols.df_resid
+        assert tier.residual_df == ols.df_resid
 
 
 def test_f_comparisons_match_statsmodels_compare_f_test(fitted):
@@ -85,10 +86,10 @@ def test_f_comparisons_match_statsmodels_compare_f_test(fitted):
         big = sm.OLS(d.y, d.x[:, :d.tier_width[k]]).fit()
         small = sm.OLS(d.y, d.x[:, :d.tier_width[k - 1]]).fit()
         f, p, df_diff = big.compare_f_test(small)  # reference library
-        assert comparison.test == "F"
+        assert comparison.method == "F"
         assert comparison.df_added == df_diff
-        assert comparison.statistic == pytest.approx(f, rel=1e-9)
-        assert comparison.p_value == pytest.approx(p, rel=1e-8)
+        assert comparison.test_value == pytest.approx(f, rel=1e-9)
+        assert comparison.p == pytest.approx(p, rel=1e-8)
         assert comparison.df_denominator == big.df_resid
 
 
@@ -100,19 +101,24 @@ def test_joint_exposure_test_matches_statsmodels_f_test(fitted):
         restriction[0, 1] = restriction[1, 2] = 1.0
         reference = ols.f_test(restriction)  # reference library
         joint = tier.exposure[0].joint
-        assert joint.test == "F" and joint.df == 2 and joint.df_denominator == ols.df_resid
-        assert joint.statistic == pytest.approx(float(reference.fvalue), rel=1e-9)
-        assert joint.p_value == pytest.approx(float(reference.pvalue), rel=1e-8)
+        assert joint.method == "F" and joint.df_added == 2 and joint.df_denominator == ols.df_resid
+        assert joint.test_value == pytest.approx(float(reference.fvalue), rel=1e-9)
+        assert joint.p == pytest.approx(float(reference.pvalue), rel=1e-8)
 
 
-def test_exposure_across_tiers_reports_change_from_first(fitted):
+def test_exposure_across_tiers_reports_the_change_vs_the_first_tier(fitted):
     _, result = fitted
-    first = {r.term: r.estimate for r in result.exposure if r.tier == "crude"}
+    first = {r.column: r.estimate for r in result.exposure if r.tier == "crude"}
     assert len(result.exposure) == 3 * 2
     for row in result.exposure:
-        expected = (row.estimate - first[row.term]) / abs(first[row.term])
-        assert row.change_from_first == pytest.approx(expected, rel=1e-12)
-        assert row.ratio is None  # gaussian: no ratio scale
+        b, b1 = row.estimate, first[row.column]
+        assert row.change_vs_first.relative == pytest.approx(abs(b - b1) / abs(b1), rel=1e-12)
+        assert row.change_vs_first.direction == (
+            "none" if b == b1 else "sign reversed" if b * b1 < 0
+            else "away from zero" if abs(b) > abs(b1) else "toward zero")
+        # gaussian identity link: the natural scale is the difference itself
+        assert row.natural == Natural("difference", b, row.low, row.high)
+        assert row.level == 0.95
 
 
 def test_exposure_carries_the_fallback_covariance_of_an_assumption():
@@ -122,9 +128,9 @@ def test_exposure_carries_the_fallback_covariance_of_an_assumption():
     full = result.tier("full")
     assert [e.covariance for e in full.exposure] == ["classical", "HC3"]
     hc3 = sm.OLS(d.y, d.x).fit(cov_type="HC3")  # reference library
-    np.testing.assert_allclose([c.std_error for c in full.exposure[1].coefficients],
+    np.testing.assert_allclose([c.standard_error for c in full.exposure[1].columns],
                                hc3.bse[1:3], rtol=1e-9)
-    assert full.exposure[1].df == full.df_resid
+    assert full.exposure[1].df == full.residual_df
 
 
 def test_exact_fit_gives_none_with_a_reason():
@@ -134,9 +140,9 @@ def test_exact_fit_gives_none_with_a_reason():
     baseline = result.tier("baseline")
     assert baseline.sigma2 == 0.0 and baseline.rss == 0.0
     assert baseline.log_likelihood is None and baseline.aic is None
-    assert all(c.std_error is None and c.reason.startswith("exact fit")
-               for c in baseline.coefficients)
-    assert result.comparisons[0].statistic is None and "exact fit" in result.comparisons[0].reason
+    assert all(c.standard_error is None and c.reason.startswith("exact fit")
+               for c in baseline.columns)
+    assert result.comparisons[0].test_value is None and "exact fit" in result.comparisons[0].reason
 
 
 def test_too_few_rows_stop_naming_analysis_tier_and_counts():
@@ -155,9 +161,10 @@ def test_aliased_column_stops_naming_the_column_and_tier():
         _fit(columns)
     assert stop.value.exit_code == Exit.DATA_CONTRACT
     messages = [p.message for p in stop.value.problems]
-    # district=b never occurs (a zero column); district=c equals guidance=coached
-    assert any("tier full" in m and "`district=b`" in m and "zero" in m for m in messages)
-    assert any("`district=c`" in m and "`guidance=coached`" in m for m in messages)
+    # district b never occurs (a zero column); district c equals guidance coached
+    assert any("tier full" in m and "`district: b vs a`" in m and "zero" in m for m in messages)
+    assert any("`district: c vs a`" in m and "`guidance: coached vs none`" in m
+               for m in messages)
     assert {p.column for p in stop.value.problems} == {"district"}
 
 
@@ -187,9 +194,9 @@ def test_small_design_matches_a_50_digit_mpmath_recomputation():
     beta = gram_inverse * (X.T * Y)
     residual = Y - X * beta
     s2 = sum(r ** 2 for r in residual) / (len(y) - 4)
-    for j, c in enumerate(result.coefficients):
+    for j, c in enumerate(result.columns):
         assert c.estimate == pytest.approx(float(beta[j]), rel=1e-8)
-        assert c.std_error == pytest.approx(float(mpmath.sqrt(s2 * gram_inverse[j, j])), rel=1e-8)
+        assert c.standard_error == pytest.approx(float(mpmath.sqrt(s2 * gram_inverse[j, j])), rel=1e-8)
 
 
 @st.composite
@@ -229,10 +236,10 @@ def test_f_statistic_is_the_textbook_formula_with_scipy_p(case):
     for k, comparison in enumerate(result.comparisons, start=1):
         small, big = result.tiers[k - 1], result.tiers[k]
         # references.md: F = ((RSS_r − RSS_f)/(df_r − df_f)) / (RSS_f/df_f)
-        f = ((small.rss - big.rss) / (small.df_resid - big.df_resid)) / (big.rss / big.df_resid)
-        assert comparison.statistic == pytest.approx(f, rel=1e-9)
-        assert comparison.p_value == pytest.approx(
-            stats.f.sf(f, small.df_resid - big.df_resid, big.df_resid), rel=1e-9, abs=1e-300)
+        f = ((small.rss - big.rss) / (small.residual_df - big.residual_df)) / (big.rss / big.residual_df)
+        assert comparison.test_value == pytest.approx(f, rel=1e-9)
+        assert comparison.p == pytest.approx(
+            stats.f.sf(f, small.residual_df - big.residual_df, big.residual_df), rel=1e-9, abs=1e-300)
 
 
 def test_chunked_qr_gives_the_r_factor_of_the_whole_matrix():
@@ -254,8 +261,8 @@ def test_a_fit_over_many_chunks_matches_statsmodels():
     d, result = _fit(columns, covariance=Covariance("HC3"))
     reference = sm.OLS(d.y, d.x).fit(cov_type="HC3")  # reference library
     full = result.tier("full")
-    np.testing.assert_allclose([c.estimate for c in full.coefficients], reference.params,
+    np.testing.assert_allclose([c.estimate for c in full.columns], reference.params,
                                rtol=1e-9)
-    np.testing.assert_allclose([c.std_error for c in full.coefficients], reference.bse,
+    np.testing.assert_allclose([c.standard_error for c in full.columns], reference.bse,
                                rtol=1e-9)
     assert full.rss == pytest.approx(reference.ssr, rel=1e-10)

@@ -64,11 +64,11 @@ def test_logistic_matches_statsmodels_logit(logistic):
     d, result = logistic
     for width, tier in zip(d.tier_width, result.tiers):
         reference = sm.Logit(d.y, d.x[:, :width]).fit(disp=0, tol=1e-12)  # reference library
-        np.testing.assert_allclose([c.estimate for c in tier.coefficients], reference.params,
+        np.testing.assert_allclose([c.estimate for c in tier.columns], reference.params,
                                    rtol=1e-6)
-        np.testing.assert_allclose([c.std_error for c in tier.coefficients], reference.bse,
+        np.testing.assert_allclose([c.standard_error for c in tier.columns], reference.bse,
                                    rtol=1e-6)
-        np.testing.assert_allclose([c.p_value for c in tier.coefficients], reference.pvalues,
+        np.testing.assert_allclose([c.p_two_sided for c in tier.columns], reference.pvalues,
                                    rtol=1e-5)
         assert tier.log_likelihood == pytest.approx(reference.llf, rel=1e-9)
         assert tier.aic == pytest.approx(reference.aic, rel=1e-9)
@@ -88,7 +88,7 @@ def test_logistic_matches_a_direct_maximisation_of_the_likelihood(logistic):
 
     best = optimize.minimize(negative_log_likelihood, np.zeros(x.shape[1]), jac=gradient,
                              method="BFGS", options={"gtol": 1e-10})
-    np.testing.assert_allclose([c.estimate for c in result.tier("adjusted").coefficients],
+    np.testing.assert_allclose([c.estimate for c in result.tier("adjusted").columns],
                                best.x, rtol=1e-5)
 
 
@@ -97,9 +97,9 @@ def test_poisson_with_offset_matches_statsmodels_discrete_poisson(poisson):
     for width, tier in zip(d.tier_width, result.tiers):
         reference = sm.Poisson(d.y, d.x[:, :width], offset=d.offset).fit(
             disp=0, tol=1e-12, method="newton")  # reference library
-        np.testing.assert_allclose([c.estimate for c in tier.coefficients], reference.params,
+        np.testing.assert_allclose([c.estimate for c in tier.columns], reference.params,
                                    rtol=1e-6)
-        np.testing.assert_allclose([c.std_error for c in tier.coefficients], reference.bse,
+        np.testing.assert_allclose([c.standard_error for c in tier.columns], reference.bse,
                                    rtol=1e-6)
         assert tier.log_likelihood == pytest.approx(reference.llf, rel=1e-9)
 
@@ -111,7 +111,7 @@ def test_poisson_deviance_pearson_and_dispersion_match_statsmodels_glm(poisson):
                            offset=d.offset).fit()  # reference library
         assert tier.deviance == pytest.approx(reference.deviance, rel=1e-8)
         assert tier.null_deviance == pytest.approx(reference.null_deviance, rel=1e-8)
-        assert tier.pearson_chi2 == pytest.approx(reference.pearson_chi2, rel=1e-8)
+        assert tier.pearson_x2 == pytest.approx(reference.pearson_chi2, rel=1e-8)
         assert tier.dispersion == pytest.approx(reference.pearson_chi2 / reference.df_resid,
                                                 rel=1e-8)
 
@@ -122,9 +122,9 @@ def test_likelihood_ratio_comparison_on_chi_square(logistic):
     big = sm.Logit(d.y, d.x).fit(disp=0, tol=1e-12)
     lr = 2 * (big.llf - small.llf)  # references.md: 2(ℓ_full − ℓ_reduced) on χ²(df added)
     comparison = result.comparisons[0]
-    assert comparison.test == "LR" and comparison.df_added == 1
-    assert comparison.statistic == pytest.approx(lr, rel=1e-6)
-    assert comparison.p_value == pytest.approx(stats.chi2.sf(lr, 1), rel=1e-5)
+    assert comparison.method == "LR" and comparison.df_added == 1
+    assert comparison.test_value == pytest.approx(lr, rel=1e-6)
+    assert comparison.p == pytest.approx(stats.chi2.sf(lr, 1), rel=1e-5)
 
 
 def test_joint_exposure_test_is_a_wald_chi_square(logistic):
@@ -132,16 +132,17 @@ def test_joint_exposure_test_is_a_wald_chi_square(logistic):
     reference = sm.GLM(d.y, d.x, family=sm.families.Binomial()).fit().wald_test(
         np.eye(4)[1:3], scalar=True)  # reference library
     joint = result.tier("adjusted").exposure[0].joint
-    assert joint.test == "Wald" and joint.df == 2 and joint.df_denominator is None
-    assert joint.statistic == pytest.approx(float(reference.statistic), rel=1e-6)
+    assert joint.method == "Wald" and joint.df_added == 2 and joint.df_denominator is None
+    assert joint.test_value == pytest.approx(float(reference.statistic), rel=1e-6)
 
 
 def test_exposure_is_also_given_as_odds_ratio(logistic):
     _, result = logistic
     for row in result.exposure:
-        assert row.ratio == pytest.approx(math.exp(row.estimate), rel=1e-12)
-        assert row.ratio_ci_low == pytest.approx(math.exp(row.ci_low), rel=1e-12)
-        assert row.ratio_ci_high == pytest.approx(math.exp(row.ci_high), rel=1e-12)
+        assert row.natural.scale == "odds ratio"
+        assert row.natural.estimate == pytest.approx(math.exp(row.estimate), rel=1e-12)
+        assert row.natural.low == pytest.approx(math.exp(row.low), rel=1e-12)
+        assert row.natural.high == pytest.approx(math.exp(row.high), rel=1e-12)
 
 
 def test_events_count_the_outcome_ones(logistic):
@@ -161,8 +162,8 @@ def test_perfect_separation_gives_none_with_a_reason_and_a_warning():
     columns["settled"] = (columns["age"] > 45).astype(float)  # age separates the outcome
     _, result = _fit("binomial", columns)
     adjusted = result.tier("adjusted")
-    assert all(c.estimate is None and "separation" in c.reason for c in adjusted.coefficients)
-    assert result.comparisons[0].statistic is None and "separation" in result.comparisons[0].reason
+    assert all(c.estimate is None and "separation" in c.reason for c in adjusted.columns)
+    assert result.comparisons[0].test_value is None and "separation" in result.comparisons[0].reason
     assert any("separation" in w for w in result.warnings)
     assert all(math.isfinite(v) for _, v in fk.walk_numbers(result))
 
@@ -172,7 +173,7 @@ def test_quasi_separation_by_an_empty_cell_gives_none_with_a_reason():
     columns["settled"][columns["guidance"] == "coached"] = 1.0  # every coached sleeper settles
     _, result = _fit("binomial", columns)
     crude = result.tier("crude")
-    assert crude.coefficients[0].estimate is None and "separation" in crude.reason
+    assert crude.columns[0].estimate is None and "separation" in crude.reason
     assert all(r.estimate is None for r in result.exposure)
 
 
@@ -180,8 +181,8 @@ def test_poisson_group_without_events_gives_none_with_a_reason():
     columns = _columns()
     columns["wakes"][columns["guidance"] == "leaflet"] = 0.0
     _, result = _fit("poisson", columns)
-    assert all(c.std_error is None and "driven to zero" in c.reason
-               for c in result.tier("crude").coefficients)
+    assert all(c.standard_error is None and "driven to zero" in c.reason
+               for c in result.tier("crude").columns)
 
 
 def test_nothing_non_finite_leaves_a_glm_fit(poisson):

@@ -68,7 +68,7 @@ def test_deviance_loglikelihood_and_pearson_accumulate_to_statsmodels(family):
     assert fit.deviance == pytest.approx(expected.deviance, rel=1e-12)
     assert fit.null_deviance == pytest.approx(expected.null_deviance, rel=1e-12)
     assert fit.log_likelihood == pytest.approx(expected.llf, rel=1e-12)
-    assert fit.pearson_chi2 == pytest.approx(expected.pearson_chi2, rel=1e-12)
+    assert fit.pearson_x2 == pytest.approx(expected.pearson_chi2, rel=1e-12)
 
 
 @pytest.mark.parametrize("family", ["binomial", "poisson"])

@@ -26,7 +26,7 @@ def _clear_of_boundary(adjusted, alpha) -> bool:
 
 def test_holm_matches_the_published_worked_example():
     out = holm(HOLM_P, 0.05)
-    assert [o.adjusted_p for o in out] == pytest.approx(HOLM_ADJUSTED, abs=1e-12)
+    assert [o.p_adjusted for o in out] == pytest.approx(HOLM_ADJUSTED, abs=1e-12)
 
 
 def test_holm_rejects_the_first_and_fourth_of_the_worked_example():
@@ -45,7 +45,7 @@ def test_holm_holds_each_step_to_alpha_over_remaining_count():
 def test_holm_agrees_with_statsmodels(p, alpha):
     reject, corrected, _, _ = multipletests(p, alpha=alpha, method="holm")
     out = holm(p, alpha)
-    assert [o.adjusted_p for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
+    assert [o.p_adjusted for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
     if _clear_of_boundary(corrected, alpha):
         assert [o.rejected for o in out] == list(reject)
 
@@ -55,7 +55,7 @@ def test_holm_agrees_with_statsmodels(p, alpha):
 def test_hochberg_agrees_with_statsmodels_simes_hochberg(p, alpha):
     reject, corrected, _, _ = multipletests(p, alpha=alpha, method="simes-hochberg")
     out = hochberg(p, alpha)
-    assert [o.adjusted_p for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
+    assert [o.p_adjusted for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
     if _clear_of_boundary(corrected, alpha):
         assert [o.rejected for o in out] == list(reject)
 
@@ -65,7 +65,7 @@ def test_hochberg_agrees_with_statsmodels_simes_hochberg(p, alpha):
 def test_bonferroni_agrees_with_statsmodels(p, alpha):
     reject, corrected, _, alpha_bonf = multipletests(p, alpha=alpha, method="bonferroni")
     out = bonferroni(p, alpha)
-    assert [o.adjusted_p for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
+    assert [o.p_adjusted for o in out] == pytest.approx(list(corrected), rel=1e-12, abs=1e-15)
     assert all(o.alpha_used == pytest.approx(alpha_bonf) for o in out)
     if _clear_of_boundary(corrected, alpha):
         assert [o.rejected for o in out] == list(reject)
@@ -98,21 +98,21 @@ def test_fixed_sequence_tests_each_reached_member_at_full_alpha():
 def test_fixed_sequence_adjusted_p_is_the_running_maximum():
     # hierarchical procedure: adjusted p = max of the p-values up to and including it
     out = fixed_sequence((0.01, 0.04, 0.02), 0.05)
-    assert [o.adjusted_p for o in out] == [0.01, 0.04, 0.04]
+    assert [o.p_adjusted for o in out] == [0.01, 0.04, 0.04]
 
 
 def test_missing_p_is_never_rejected_and_still_counts_in_m():
     out = bonferroni((0.001, None), 0.05)
-    assert out[1].rejected is False and out[1].adjusted_p is None
-    assert out[0].adjusted_p == pytest.approx(0.002)  # m = 2, not 1
+    assert out[1].rejected is False and out[1].p_adjusted is None
+    assert out[0].p_adjusted == pytest.approx(0.002)  # m = 2, not 1
 
 
 def test_missing_p_in_holm_is_treated_as_one():
     # statsmodels reference with the missing member filled in as p = 1
     _, corrected, _, _ = multipletests([0.01, 1.0, 0.02], method="holm")
     out = holm((0.01, None, 0.02), 0.05)
-    assert out[0].adjusted_p == pytest.approx(corrected[0])
-    assert out[2].adjusted_p == pytest.approx(corrected[2])
+    assert out[0].p_adjusted == pytest.approx(corrected[0])
+    assert out[2].p_adjusted == pytest.approx(corrected[2])
 
 
 def test_missing_p_stops_a_fixed_sequence():

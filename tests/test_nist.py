@@ -25,14 +25,14 @@ def longley_fit():
 
 @pytest.mark.parametrize("term", list(nist.CERTIFIED))
 def test_longley_coefficient_is_certified(longley_fit, term):
-    found = next(c for c in longley_fit.coefficients if c.term == term)
+    found = next(c for c in longley_fit.columns if c.column == term)
     assert nist.lre(found.estimate, nist.CERTIFIED[term][0]) >= MIN_LRE
 
 
 @pytest.mark.parametrize("term", list(nist.CERTIFIED))
 def test_longley_standard_error_is_certified(longley_fit, term):
-    found = next(c for c in longley_fit.coefficients if c.term == term)
-    assert nist.lre(found.std_error, nist.CERTIFIED[term][1]) >= MIN_LRE
+    found = next(c for c in longley_fit.columns if c.column == term)
+    assert nist.lre(found.standard_error, nist.CERTIFIED[term][1]) >= MIN_LRE
 
 
 def test_longley_r_squared_is_certified(longley_fit):
@@ -44,7 +44,7 @@ def test_longley_residual_ss_is_certified(longley_fit):
 
 
 def test_longley_residual_sd_and_df_are_certified(longley_fit):
-    assert longley_fit.df_resid == nist.CERTIFIED_RESIDUAL_DF
+    assert longley_fit.residual_df == nist.CERTIFIED_RESIDUAL_DF
     assert nist.lre(longley_fit.sigma2 ** 0.5, nist.CERTIFIED_RESIDUAL_SD) >= MIN_LRE
 
 
@@ -69,19 +69,19 @@ def _fit_xy(y, x, tiers, tier):
 def test_pontius_quadratic_is_certified(term):
     fitted = _fit_xy(nist.PONTIUS_Y, nist.PONTIUS_X,
                      [("linear", []), ("quadratic", [{"power": "x", "degree": 2}])], "quadratic")
-    found = next(c for c in fitted.coefficients if c.term == term)
+    found = next(c for c in fitted.columns if c.column == term)
     estimate, sd = nist.PONTIUS_CERTIFIED[term]  # NIST StRD Pontius, certified
     assert nist.lre(found.estimate, estimate) >= MIN_LRE
-    assert nist.lre(found.std_error, sd) >= MIN_LRE
+    assert nist.lre(found.standard_error, sd) >= MIN_LRE
 
 
 def test_norris_line_is_certified():
     y, x = np.asarray(nist.NORRIS).T
     fitted = _fit_xy(y, x, [("linear", [])], "linear")
-    for c in fitted.coefficients:
-        estimate, sd = nist.NORRIS_CERTIFIED[c.term]  # NIST StRD Norris, certified
+    for c in fitted.columns:
+        estimate, sd = nist.NORRIS_CERTIFIED[c.column]  # NIST StRD Norris, certified
         assert nist.lre(c.estimate, estimate) >= MIN_LRE
-        assert nist.lre(c.std_error, sd) >= MIN_LRE
+        assert nist.lre(c.standard_error, sd) >= MIN_LRE
     assert nist.lre(fitted.r_squared, nist.NORRIS_R_SQUARED) >= MIN_LRE
     assert nist.lre(fitted.rss, nist.NORRIS_RESIDUAL_SS) >= MIN_LRE
 
@@ -96,7 +96,7 @@ def test_wampler1_is_an_exact_fit_with_unit_coefficients():
                             ("quintic", [{"power": "x", "degree": k} for k in range(2, 6)])],
                      "quintic")
     assert fitted.rss == 0.0 and fitted.reason.startswith("exact fit")
-    for c in fitted.coefficients:
+    for c in fitted.columns:
         # measured LRE ≈ 9.1 on the intercept; NIST rates Wampler1 higher difficulty
         assert nist.lre(c.estimate, 1.0) >= 8.0
-        assert c.std_error is None and c.reason == "exact fit: zero residual variance"
+        assert c.standard_error is None and c.reason == "exact fit: zero residual variance"

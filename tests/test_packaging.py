@@ -18,7 +18,7 @@ import pytest
 from compiler import resources
 
 ROOT = Path(__file__).resolve().parents[1]
-SHIPPED = ["pyproject.toml", "README.md", "compiler", "schemas", "templates"]
+SHIPPED = ["pyproject.toml", "README.md", "compiler", "schemas", "templates", "reference"]
 
 pytestmark = pytest.mark.packaging
 
@@ -56,8 +56,17 @@ def test_the_wheel_carries_every_template(wheel):
 
 def test_pyproject_ships_the_schema_and_template_folders():
     setup = tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["tool"]["setuptools"]
-    assert setup["package-dir"] == {"compiler.schemas": "schemas", "compiler.templates": "templates"}
-    assert {"compiler.schemas", "compiler.templates"} <= set(setup["package-data"])
+    assert setup["package-dir"] == {"compiler.schemas": "schemas", "compiler.templates": "templates",
+                                    "compiler.reference": "reference"}
+    assert {"compiler.schemas", "compiler.templates", "compiler.reference"} <= set(
+        setup["package-data"])
+
+
+def test_the_wheel_carries_the_reference_data_qualify_runs_offline(wheel):
+    names = set(zipfile.ZipFile(wheel).namelist())
+    shipped = sorted(p.name for p in (ROOT / "reference").iterdir())
+    assert "nist_strd_lls.json" in shipped and "README.md" in shipped
+    assert [n for n in shipped if f"compiler/reference/{n}" not in names] == []
 
 
 def test_an_installed_wheel_finds_its_own_schema_and_templates(wheel, tmp_path):
@@ -65,10 +74,11 @@ def test_an_installed_wheel_finds_its_own_schema_and_templates(wheel, tmp_path):
     zipfile.ZipFile(wheel).extractall(site)  # a pure wheel installs by unpacking
     probe = ("import compiler, compiler.resources as r; "
              "print(compiler.__file__); print(r.schema_path('plan.schema.json')); "
-             "print(r.templates_dir())")
+             "print(r.templates_dir()); print(r.reference_path('glm_fits.json'))")
     result = subprocess.run([sys.executable, "-c", probe], cwd=tmp_path, check=True,
                             capture_output=True, text=True, env={"PYTHONPATH": str(site)})
-    module, schema, templates = (Path(line) for line in result.stdout.splitlines())
+    module, schema, templates, reference = (Path(line) for line in result.stdout.splitlines())
+    assert reference == site / "compiler" / "reference" / "glm_fits.json" and reference.is_file()
     assert module.is_relative_to(site)
     assert schema == site / "compiler" / "schemas" / "plan.schema.json" and schema.is_file()
     assert templates == site / "compiler" / "templates" and (templates / "report.html").is_file()

@@ -64,11 +64,12 @@ def test_results_and_report_name_the_reference():
 
     _, result = _fit("gaussian", Covariance("cluster", "site"))
     record = {"reference": results._reference(result.reference)}
-    inference = results._inference(result.tiers[0].exposure[0])
-    assert record["reference"]["distribution"] == "t" and record["reference"]["df"] == 9
-    assert inference["reference"] == "t"
+    inference = results._inference(result.tiers[0].exposure[0], 0.95)
+    assert record["reference"]["test"] == "t" and record["reference"]["df"] == 9
+    assert inference["test"] == "t"
+    assert {c["test"] for c in inference["columns"]} == {"t"}
     facts = dict(_facts({"family": "gaussian", "outcome": "y", "exposure_variable": "arm",
                          "population": None, "rows_in_population": N, "n": N,
-                         "covariance": "cluster(site)", "confidence": 0.95,
+                         "covariance": "clustered by site", "confidence": 0.95,
                          "report_tier": "crude", **record}))
     assert facts["reference distribution"] == "t on clusters − 1 = 9 df, every tier"

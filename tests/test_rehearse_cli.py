@@ -113,18 +113,18 @@ def test_effects_are_planted_per_analysis_and_level_on_the_natural_scale(tmp_pat
         {"analysis": "primary", "level": None, "scale": "difference", "value": -4.0},
         {"analysis": "primary", "level": "coached", "scale": "difference", "value": -12.0},
         {"analysis": "awakenings", "level": None, "scale": "rate ratio", "value": 0.5}]
-    exposure = {(a["id"], row["term"]): row for a in document["analyses"]
+    exposure = {(a["id"], row["column"]): row for a in document["analyses"]
                 for row in a["exposure"] if row["tier"] == a["tiers"][-1]["name"]}
     # each estimate lies within 4 standard errors of what was planted (on the model scale: a
     # difference, or the ratio's logarithm; a miss has probability 6e-5 per estimate under the
     # normal approximation); settled got no effect planted (odds ratio 1)
-    planted = {("primary", "guidance=leaflet"): -4.0, ("primary", "guidance=coached"): -12.0,
-               ("awakenings", "guidance=leaflet"): math.log(0.5),
-               ("awakenings", "guidance=coached"): math.log(0.5),
-               ("settled", "guidance=leaflet"): 0.0, ("settled", "guidance=coached"): 0.0}
+    leaflet, coached = "guidance: leaflet vs none", "guidance: coached vs none"
+    planted = {("primary", leaflet): -4.0, ("primary", coached): -12.0,
+               ("awakenings", leaflet): math.log(0.5), ("awakenings", coached): math.log(0.5),
+               ("settled", leaflet): 0.0, ("settled", coached): 0.0}
     for key, value in planted.items():
         row = exposure[key]
-        assert abs(row["estimate"] - value) < 4 * row["std_error"], (key, row)
+        assert abs(row["estimate"] - value) < 4 * row["standard_error"], (key, row)
     assert "planted effects primary difference -4.0" in document["rehearsal_note"]
 
 

@@ -107,10 +107,10 @@ def test_clustered_standard_errors_and_df_look_like_a_cluster_design():
         table = synthetic_table(plan, seed=seed, rows=3000)
         fit = analyse(plan, None, table=table).fits[0]
         inference = fit.tiers[-1].exposure[0]
-        assert inference.covariance == "cluster(school)" and inference.df == 29
+        assert inference.covariance == "clustered by school" and inference.df == 29
         built = design.design(plan, a, complete_sample(plan, a, table))
         classical = sm.OLS(built.y, np.asarray(built.x)).fit().bse[1:3]
-        ratios += [c.std_error / s for c, s in zip(inference.coefficients, classical)]
+        ratios += [c.standard_error / s for c, s in zip(inference.columns, classical)]
     m = 3000 / 30
     assert 0.6 * math.sqrt(1 + (m - 1) * 0.05) < np.median(ratios) < 1.4 * math.sqrt(
         1 + (m - 1) * 0.05)

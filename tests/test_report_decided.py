@@ -56,10 +56,10 @@ def _primary(view):
     return next(a for a in view["analyses"] if a["id"] == "primary")
 
 
-def _coefficient(document, analysis, tier, term):
+def _coefficient(document, analysis, tier, column):
     a = next(x for x in document["analyses"] if x["id"] == analysis)
     t = next(x for x in a["tiers"] if x["name"] == tier)
-    return next(c for c in t["coefficients"] if c["term"] == term)
+    return next(c for c in t["columns"] if c["column"] == column)
 
 
 # ---- point 1: the analysis page shows what decided, and its own numbers, both labelled ----
@@ -67,7 +67,7 @@ def _coefficient(document, analysis, tier, term):
 def test_the_fallback_decision_records_hc3_at_its_holm_level(document):
     h1 = _decision(document, "H1")
     assert h1["inference"]["covariance"] == "HC3"
-    assert h1["inference"]["level"] in (0.975, 0.95)  # a Holm step: α/2 or α
+    assert h1["inference"]["interval"]["level"] in (0.975, 0.95)  # a Holm step: α/2 or α
     assert "Holm step" in h1["inference"]["level_why"]
 
 
@@ -77,14 +77,15 @@ def test_the_analysis_page_shows_the_decided_and_its_own_inference(document, vie
     decided, page = row["lines"]
     inference = h1["inference"]
     assert (decided["label"], decided["covariance"]) == ("decided", "HC3")
-    assert decided["std_error"].text == f.num(inference["std_error"])
-    assert decided["level"].text == f.level(inference["level"])
-    assert decided["interval"].text == (f"{f.num(inference['low'])} to "
-                                        f"{f.num(inference['high'])}")
-    own = _coefficient(document, "primary", "full", "guidance=coached")
+    assert decided["standard_error"].text == f.num(inference["standard_error"])
+    assert decided["level"].text == f.level(inference["interval"]["level"])
+    assert decided["interval"].text == (f"{f.num(inference['interval']['low'])} to "
+                                        f"{f.num(inference['interval']['high'])}")
+    own = _coefficient(document, "primary", "full", "guidance: coached vs none")
     assert (page["label"], page["covariance"]) == ("this page", "classical")
-    assert page["std_error"].text == f.num(own["std_error"])
-    assert page["interval"].text == f"{f.num(own['ci_low'])} to {f.num(own['ci_high'])}"
+    assert page["standard_error"].text == f.num(own["standard_error"])
+    assert page["interval"].text == (f"{f.num(own['interval']['low'])} to "
+                                     f"{f.num(own['interval']['high'])}")
     assert "Holm step" in row["why"] and "Breusch–Pagan" in row["why"]
 
 
@@ -97,7 +98,7 @@ def test_the_analysis_facts_name_the_covariance_the_decisions_used(view):
 def test_the_decision_detail_labels_both_intervals_and_says_why_the_level(document, view):
     d = next(x for x in view["decisions"] if x["id"] == "H1")
     labels = [label for label, _ in d["numbers"]]
-    level = f.level(_decision(document, "H1")["inference"]["level"])
+    level = f.level(_decision(document, "H1")["inference"]["interval"]["level"])
     assert f"{level} CI, decided" in labels
     assert f"{f.level(0.95)} CI, classical, as on the analysis page" in labels
     assert "why this level" in labels and "why this covariance" in labels
@@ -105,7 +106,7 @@ def test_the_decision_detail_labels_both_intervals_and_says_why_the_level(docume
 
 def test_a_one_sided_interval_says_one_minus_two_alpha(document):
     s1 = _decision(document, "S1")
-    assert s1["inference"]["level"] == pytest.approx(0.9)  # 1 − 2α at α = 0.05
+    assert s1["inference"]["interval"]["level"] == pytest.approx(0.9)  # 1 − 2α at α = 0.05
     assert s1["inference"]["level_why"].startswith("1 − 2α with α = 0.05, the rule's own")
 
 
@@ -117,7 +118,8 @@ def test_every_verdict_line_on_an_estimate_carries_its_natural_scale_interval(do
     d = _decision(document, decision_id)
     natural = d["inference"]["natural"]
     words = "odds ratio" if d["analysis"] == "settled" else "difference"
-    assert re.search(rf"{words} guidance=\w+ -?[\d.]+, [\d.]+% CI -?[\d.]+ to -?[\d.]+",
+    assert re.search(rf"{words} \(guidance: \w+ vs none\) -?[\d.]+, [\d.]+% CI -?[\d.]+ "
+                     rf"to -?[\d.]+",
                      d["reason"]), d["reason"]
     assert natural["low"] < natural["estimate"] < natural["high"]
 

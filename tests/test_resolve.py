@@ -196,9 +196,9 @@ def test_levels_on_a_continuous_variable_are_refused(tmp_path):
 
 
 def test_no_variable_may_be_named_like_the_intercept_column(tmp_path):
-    text = variant("  visits: {kind: count}", '  "(intercept)": {kind: count}')
+    text = variant("  visits: {kind: count}", '  "intercept": {kind: count}')
     assert problems(tmp_path, text) == [
-        ("`(intercept)` is the label of the model's intercept column, so no variable may be "
+        ("`intercept` is the label of the model's intercept column, so no variable may be "
          "named so", 11, 3)]
 
 
@@ -264,7 +264,7 @@ def test_a_term_added_twice_across_tiers(tmp_path):
 def test_a_product_written_in_another_order_is_the_same_term(tmp_path):
     text = variant("add: [age, sex]", "add: [{product: [age, sex]}, {product: [sex, age]}]")
     assert problems(tmp_path, text) == [
-        ("term `sex*age` is already added in tier `adjusted`", 27, 38)]
+        ("term `sex × age` is already added in tier `adjusted`", 27, 38)]
 
 
 def test_a_term_equal_to_the_exposure(tmp_path):

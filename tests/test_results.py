@@ -104,17 +104,17 @@ def test_the_data_file_is_named_without_its_folder(analysed):
 def test_a_non_finite_estimate_becomes_null_with_a_reason(analysed):
     fit = analysed.fits[0]
     tier = fit.tiers[0]
-    broken = replace(tier.coefficients[0], estimate=math.nan, reason=None)
-    tiers = (replace(tier, coefficients=(broken, *tier.coefficients[1:])), *fit.tiers[1:])
+    broken = replace(tier.columns[0], estimate=math.nan, reason=None)
+    tiers = (replace(tier, columns=(broken, *tier.columns[1:])), *fit.tiers[1:])
     spoilt = replace(analysed, fits=(replace(fit, tiers=tiers), *analysed.fits[1:]))
-    written = build(spoilt)["analyses"][0]["tiers"][0]["coefficients"][0]
+    written = build(spoilt)["analyses"][0]["tiers"][0]["columns"][0]
     assert written["estimate"] is None and written["reason"] == results.NOT_FINITE
 
 
 def test_an_infinite_number_behind_a_verdict_becomes_null(analysed):
-    verdict = replace(analysed.verdicts[0], numbers={"statistic": math.inf, "p_value": 0.5})
+    verdict = replace(analysed.verdicts[0], numbers={"test_value": math.inf, "p": 0.5})
     spoilt = replace(analysed, verdicts=(verdict, *analysed.verdicts[1:]))
-    assert build(spoilt)["decisions"][0]["numbers"] == {"statistic": None, "p_value": 0.5}
+    assert build(spoilt)["decisions"][0]["numbers"] == {"test_value": None, "p": 0.5}
 
 
 def test_canonical_bytes_refuse_nan_outright():

@@ -20,7 +20,7 @@ def test_numbers_print_to_three_significant_digits_without_exponents():
 
 def test_a_rule_on_a_named_level_reads_that_level_column():
     plan = plan_with(decision("H1", level="coached"))
-    assert exposure_term(plan, plan.decisions[0]) == "guidance=coached"
+    assert exposure_term(plan, plan.decisions[0]) == "guidance: coached vs none"
 
 
 def test_a_rule_without_level_on_three_levels_reads_the_joint_test():

@@ -139,6 +139,11 @@ def test_verify_with_changed_data_names_the_values_that_differ(study, tmp_path, 
     found = json.loads(capsys.readouterr().out)["problems"]
     listed = next(p["details"] for p in found if p["code"] == "results-differ")
     assert len(listed["differences"]) == len(set(listed["differences"])) == listed["count"]
+    # the values are named by their design columns' labels, as results and report print them
+    assert any(line.startswith("analyses[primary].tiers[crude].columns[guidance: coached vs "
+                               "none].estimate: ") for line in listed["differences"])
+    assert any(line.startswith("analyses[primary].exposure[full, guidance: leaflet vs none]"
+                               ".natural.estimate: ") for line in listed["differences"])
 
 
 def _sha(path: Path) -> str:

@@ -22,7 +22,7 @@ from compiler.fitted import JointTest
 from compiler.plan import Assumption, Covariance, MinimumInformation, Multiplicity
 from compiler.stored_fits import fits_of, mismatch, settled
 
-COACHED, LEAFLET = "guidance=coached", "guidance=leaflet"
+COACHED, LEAFLET = "guidance: coached vs none", "guidance: leaflet vs none"
 EFFECTS = {COACHED: (2.0, 0.8), LEAFLET: (0.5, 0.8)}
 
 
@@ -116,7 +116,7 @@ CASES = {
 def stored(plan, fit) -> dict:
     """The document's analyses as results.json holds them, read back from its bytes."""
     analysis = plan.analyses[0]
-    document = {"analyses": [{**results.analysis_header(plan, analysis), **results.fit_parts(fit)}]}
+    document = {"analyses": [{**results.analysis_header(plan, analysis), **results.fit_parts(fit, analysis.confidence)}]}
     return json.loads(canonical_bytes(document))
 
 
@@ -135,8 +135,8 @@ def test_the_stored_fit_keeps_what_decide_reads():
     (back,) = fits_of(stored(plan, fit))
     assert back.tier("full").exposure[1].covariance == "HC3"
     assert back.diagnostics.breusch_pagan_p == 0.003
-    assert [c.term for c in back.tier("full").coefficients] == [c.term for c in
-                                                                fit.tier("full").coefficients]
+    assert [c.column for c in back.tier("full").columns] == [c.column for c in
+                                                                fit.tier("full").columns]
 
 
 def test_stored_analyses_that_are_not_the_plans_are_named():

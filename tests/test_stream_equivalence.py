@@ -14,6 +14,7 @@ import math
 
 import numpy as np
 import pytest
+from schemakit import assert_follows_schema
 
 from compiler import batches
 from compiler.pipeline import analyse
@@ -100,7 +101,7 @@ def numbers_agree(a, b, where="", skip=("fitted", "residuals")):
         for key in a:
             numbers_agree(a[key], b[key], f"{where}.{key}")
     elif isinstance(a, float) and isinstance(b, float):
-        if ("p_value" in where or where.endswith("_p")) and a > 0 and b > 0:
+        if where.endswith((".p", "_p", ".p_two_sided", ".p_adjusted")) and a > 0 and b > 0:
             a, b = math.log(a), math.log(b)
         assert a == pytest.approx(b, rel=DIGITS, abs=1e-300), where
     elif not isinstance(a, np.ndarray):
@@ -232,6 +233,7 @@ def test_prespec_run_stream_writes_the_in_memory_results(tmp_path):
                                    "PRESPEC_STREAM_BATCH_ROWS": "100",
                                    "CI": "1"})
         assert done.returncode == 0, done.stderr
+        assert_follows_schema(out / "results.json")
         documents.append(json.loads((out / "results.json").read_text()))
     in_memory, streamed = documents
     for analysis in (*in_memory["analyses"], *streamed["analyses"]):
@@ -279,8 +281,8 @@ def test_streamed_clustered_covariance_equals_in_memory(tmp_path, small_batches)
     numbers_agree(in_memory.fits, streamed.fits, "fits")
     for fit in streamed.fits:
         for tier in fit.tiers:
-            assert all(c.std_error is not None for c in tier.coefficients), (fit.analysis, tier.name)
-            assert [e.covariance for e in tier.exposure] == ["cluster(site)"]
+            assert all(c.standard_error is not None for c in tier.columns), (fit.analysis, tier.name)
+            assert [e.covariance for e in tier.exposure] == ["clustered by site"]
 
 
 @pytest.mark.parametrize("suffix", [".parquet", ".xpt", ".dta"])
@@ -332,7 +334,7 @@ def test_streamed_characteristics_equal_in_memory_but_for_the_quartiles(tmp_path
     def without_quartiles(summary):
         summary = dict(summary, quartiles=None)
         for variable in summary["variables"]:
-            for cell in (*variable["groups"], variable["overall"]):
+            for cell in (*variable["groups"], variable["whole_sample"]):
                 if "mean" in cell:
                     assert all(cell[q] is not None for q in quartiles) or cell["n"] == 0
                     cell.update(dict.fromkeys(quartiles), reason=None)
@@ -340,7 +342,7 @@ def test_streamed_characteristics_equal_in_memory_but_for_the_quartiles(tmp_path
 
     for name in in_memory:
         for variable in streamed[name]["variables"]:
-            for cell in (*variable["groups"], variable["overall"]):
+            for cell in (*variable["groups"], variable["whole_sample"]):
                 if "mean" in cell and cell["n"]:
                     assert cell["median"] is None and "streamed run" in cell["reason"]
                     cell["reason"] = None
