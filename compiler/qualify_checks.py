@@ -144,8 +144,8 @@ def holm_checks() -> list:
     out = []
     for i, (result, reference, rejected) in enumerate(zip(
             adjusted, (0.03, 0.06, 0.06, 0.02), (True, False, False, True)), start=1):
-        out.append(record(f"holm.adjusted_p.{i}", HOLM_SOURCE, f"Holm-adjusted p of hypothesis "
-                          f"{i}", result.adjusted_p, reference, tolerance=LRE_EXACT))
+        out.append(record(f"holm.p_adjusted.{i}", HOLM_SOURCE, f"Holm-adjusted p of hypothesis "
+                          f"{i}", result.p_adjusted, reference, tolerance=LRE_EXACT))
         out.append(record(f"holm.rejected.{i}", HOLM_SOURCE, f"hypothesis {i} rejected",
                           result.rejected, rejected, rule="equal"))
     return out

@@ -9,13 +9,13 @@ document's key names is made here and nowhere else in either command.
 from __future__ import annotations
 
 # A tier's design columns, and the keys of one column's row.
-TIER_COLUMNS = "coefficients"
-COLUMN_LABEL = "term"
+TIER_COLUMNS = "columns"
+COLUMN_LABEL = "column"
 COLUMN_ESTIMATE = "estimate"
-COLUMN_STANDARD_ERROR = "std_error"
+COLUMN_STANDARD_ERROR = "standard_error"
 # Tier-level values by what they mean (``tier_value``) → the key results.json uses.
 TIER_KEYS = {"r_squared": "r_squared", "rss": "rss", "sigma2": "sigma2",
-             "residual_df": "df_resid", "deviance": "deviance"}
+             "residual_df": "residual_df", "deviance": "deviance"}
 
 
 def analysis(document: dict, analysis_id: str) -> dict:

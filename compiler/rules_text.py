@@ -34,11 +34,14 @@ def fmt_p_phrase(name: str, p: float | None) -> str:
 
 
 def fmt_num(x: float | None) -> str:
-    """3 significant digits, without exponent notation for everyday magnitudes."""
+    """3 significant digits, without exponent notation for everyday magnitudes (a huge value
+    in exponent notation: 7.12e+156, never its 157 digits)."""
     if x is None:
         return "not computable"
     if x == 0:
         return "0"
+    if abs(x) >= 1e6:
+        return f"{x:.3g}"
     if abs(x) >= 1000:
         return f"{x:.0f}"
     text = f"{x:.3g}"

@@ -18,6 +18,12 @@ def test_numbers_print_to_three_significant_digits_without_exponents():
                                                                         "12346")
 
 
+def test_a_huge_number_prints_in_exponent_notation_not_all_its_digits():
+    # an outcome measured at 1e154 gave a verdict reason with a 157-digit integer
+    assert (fmt_num(-7.1207e156), fmt_num(999999.4), fmt_num(2.5e6)) == ("-7.12e+156",
+                                                                         "999999", "2.5e+06")
+
+
 def test_a_rule_on_a_named_level_reads_that_level_column():
     plan = plan_with(decision("H1", level="coached"))
     assert exposure_term(plan, plan.decisions[0]) == "guidance: coached vs none"
