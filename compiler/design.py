@@ -90,12 +90,11 @@ def design(plan: Plan, analysis: Analysis, bound: BoundData) -> Design:
 
 
 def _rows_on_demand(analysis: Analysis, added: list[tuple[Term, ...]]) -> bool:
-    """Gaussian designs whose terms cannot fail are never held whole: every pass over them
-    (the QR, the fitted values, the leverages, a sandwich) takes row blocks, each built from
-    the bound columns when asked. A log term must see every value before the fit (it stops
-    the run on a non-positive one), and a GLM hands the whole matrix to statsmodels."""
-    return analysis.family == "gaussian" and not any(
-        term.form == "log" for terms in added for term in terms)
+    """Designs whose terms cannot fail are never held whole: every pass over them (the QR,
+    each IRLS iteration, the fitted values, the leverages, a sandwich) takes row blocks,
+    each built from the bound columns when asked. A log term must see every value before
+    the fit (it stops the run on a non-positive one)."""
+    return not any(term.form == "log" for terms in added for term in terms)
 
 
 def _fill(builder: "_Builder", added: list[tuple[Term, ...]], width: int) -> np.ndarray:

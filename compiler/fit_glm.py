@@ -1,20 +1,24 @@
-"""Binomial (logit) and Poisson (log) tiers through statsmodels' GLM, one fit per tier.
+"""Binomial (logit) and Poisson (log) tiers by IRLS, every tier in the same passes.
 
-statsmodels runs the iteration (IRLS); the covariances — classical and robust — are then
+The iteration is compiler/irls.py's, the one a streamed run takes, here over the design held
+in memory a chunk of rows at a time: each iteration accumulates the R factor of the weighted
+working design [W½X | W½z] chunk by chunk, so a fit needs the design, a chunk and a few
+p × p factors, never a copy of the design (statsmodels' GLM, used before, made several).
+It follows statsmodels' GLM.fit (starting values, deviance criterion), then takes two more
+Newton steps to full double precision. The covariances — classical and robust — are then
 computed here from the R factor of the weighted design W½X at the solution, by the same code
 as the gaussian ones (compiler/covariance.py). For these canonical links the classical
 covariance is (XᵀWX)⁻¹ with W = diag(V(μ)), and the Pearson residual is (y − μ)/√V(μ).
 
-What cannot be estimated is said: when statsmodels warns of perfect separation or a fitted
-value comes within 1e-6 of the boundary, the linear programme of compiler/separation.py
-decides whether the maximum-likelihood estimate exists; if it does not (complete or
-quasi-complete separation; Poisson means driven to zero), or the iteration did not converge,
-the tier's coefficients and tests are None with the reason, and a warning.
+What cannot be estimated is said: when a fitted value comes within 1e-6 of the boundary,
+the linear programme of compiler/separation.py decides whether the maximum-likelihood
+estimate exists; if it does not (complete or quasi-complete separation; Poisson means
+driven to zero), or the iteration did not converge, the tier's coefficients and tests are
+None with the reason, and a warning.
 """
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
@@ -24,7 +28,7 @@ from .fitted import Comparison, Design, TierFit
 from .inference import (coefficient_table, exposure_inference, finite_or_none,
                         information_criteria, wald_test)
 from .plan import Analysis, Covariance
-from .qr import augmented_r, triangular_inverse
+from .qr import triangular_inverse
 
 SUSPECT = 1e-6  # fitted values this close to 0 or 1 (Poisson: 0) prompt the separation check
 OVERDISPERSION = 1.5  # Pearson dispersion above this is flagged (common practice)
@@ -55,15 +59,20 @@ def fit_glm(analysis: Analysis, design: Design, covariances: list[Covariance]) -
     n = design.x.shape[0]
     clusters = int(design.cluster.max()) + 1 if design.cluster is not None and n else None
     robust = [c for c in covariances if c.kind != "classical"]
-    null_deviance = _null_deviance(design, analysis.family)
+    null, *fits = _fits(analysis.family, design)
+    null_deviance = None  # a courtesy figure: the null model's failure is not the fit's
+    if not isinstance(null, str) and null.converged:
+        null_deviance = finite_or_none(null.deviance)
     tiers, numbers, sandwiches = [], [], []
     for k, tier in enumerate(analysis.tiers):
-        number, fit_warnings = _fit_one(analysis.family, design, design.tier_width[k])
+        fit = fits[k]
+        number, fit_warnings = _fit_one(analysis.family, design, design.tier_width[k], fit)
         sandwich = _sandwich(design, number, robust)
         numbers.append(number)
         sandwiches.append(sandwich)
+        statistics = None if isinstance(fit, str) else (fit.deviance, fit.pearson_x2)
         tiers.append(_tier_fit(analysis, design, tier, k, number, covariances, clusters,
-                               fit_warnings, sandwich, null_deviance))
+                               fit_warnings, sandwich, null_deviance, statistics))
     comparisons = tuple(
         _compare(analysis, numbers[k - 1], numbers[k], tiers[k - 1], tiers[k],
                  sandwiches[k])
@@ -71,67 +80,66 @@ def fit_glm(analysis: Analysis, design: Design, covariances: list[Covariance]) -
     return GlmFit(tuple(tiers), comparisons, tuple(numbers))
 
 
-def _family(name: str):
-    import statsmodels.api as sm
-
-    return sm.families.Binomial() if name == "binomial" else sm.families.Poisson()
+_FAILURES = (np.linalg.LinAlgError, ValueError, FloatingPointError)
 
 
-def _fit_one(family: str, design: Design, width: int) -> tuple[GlmTier, list[str]]:
-    import statsmodels.api as sm
-    from statsmodels.tools.sm_exceptions import PerfectSeparationError
+def _fits(family: str, design: Design) -> list:
+    """The IRLS fits of the intercept alone and of every tier (compiler/irls.py), over the
+    design's rows a chunk at a time: per iteration one pass accumulates the R factor of the
+    weighted working design, so no n × p copy is made. Fitted together, as a streamed run
+    fits them; when that fails, one by one, so that one tier's failure (a string) is its
+    own."""
+    from .irls import fit_tiers, in_batches, moments_map
+    from .qr import CHUNK_ROWS
 
-    x = design.x[:, :width]
-    notes: list[str] = []
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always")
+    widths = [1, *design.tier_width]
+    batches = in_batches(design.x, design.y, design.offset, CHUNK_ROWS)
+    moments = moments_map((None, design.y, design.offset))
+    try:
+        return list(fit_tiers(batches, family, widths, moments=moments))
+    except _FAILURES:
+        pass
+    found: list = []
+    for width in widths:
         try:
-            result = sm.GLM(design.y, x, family=_family(family), offset=design.offset).fit(
-                wls_method="qr")  # QR steps, as the streamed IRLS takes (compiler/irls.py)
-        except PerfectSeparationError:
-            return GlmTier(width, None, None, None, None, None, _SEPARATION), [_SEPARATION]
-        except (np.linalg.LinAlgError, ValueError, FloatingPointError) as error:
-            failure = f"the fit failed: {error}"
-            return GlmTier(width, None, None, None, None, None, failure), [failure]
-        mu = np.asarray(result.mu, dtype=np.float64)  # statsmodels computes some lazily
-        llf = finite_or_none(result.llf)
-        beta = np.asarray(result.params, dtype=np.float64)
-    warned = any("PerfectSeparation" in type(w.message).__name__ for w in caught)
-    for w in caught:  # numpy's overflow chatter is a symptom, judged below, not news
-        text = str(w.message)
-        if not (warned or issubclass(w.category, RuntimeWarning)) and text not in notes:
-            notes.append(text)
-    weights = mu * (1.0 - mu) if family == "binomial" else mu.copy()
-    edge = np.minimum(mu, 1.0 - mu) if family == "binomial" else mu
+            found.extend(fit_tiers(batches, family, [width], moments=moments))
+        except _FAILURES as error:
+            found.append(f"the fit failed: {error}")
+    return found
+
+
+def _fit_one(family: str, design: Design, width: int, fit) -> tuple[GlmTier, list[str]]:
+    """One tier's numbers from its IRLS fit (``fit``: irls.GlmTierFit, or why it failed)."""
+    if isinstance(fit, str):
+        return GlmTier(width, None, None, None, None, None, fit), [fit]
+    x = design.x[:, :width]
+    eta = x @ fit.params
+    if design.offset is not None:
+        eta += design.offset
+    if family == "binomial":
+        mu = 1.0 / (1.0 + np.exp(-eta))
+        weights = mu * (1.0 - mu)
+    else:
+        mu = np.exp(eta)
+        weights = mu.copy()
     failure = None
-    if warned or np.any(edge < SUSPECT):  # the linear programme decides
+    if fit.closest_boundary < SUSPECT:  # the linear programme decides
         from .separation import separating_direction
 
-        if separating_direction(x, design.y, family):
+        if separating_direction(np.asarray(x), design.y, family):
             failure = _SEPARATION if family == "binomial" else _ZERO_MEANS
-    iterations = int(result.fit_history["iteration"])
-    if failure is None and not result.converged:
-        failure = f"the fit did not converge in {iterations} iterations"
+    if failure is None and not fit.converged:
+        failure = f"the fit did not converge in {fit.iterations} iterations"
     rinv = None
-    if failure is None:  # on to the rounding floor (statsmodels stops at 9–12 digits)
-        from .irls import REFINE_STEPS, refine
-
-        beta = refine(x, design.y, design.offset, family, beta)
-        iterations += REFINE_STEPS
-        eta = x @ beta + (0.0 if design.offset is None else design.offset)
-        fam = _family(family)
-        mu = np.asarray(fam.fitted(eta), dtype=np.float64)
-        llf = finite_or_none(fam.loglike(design.y, mu, scale=1.0))
-        weights = mu * (1.0 - mu) if family == "binomial" else mu.copy()
-        r = augmented_r(x, np.zeros(len(mu)), weights=weights)
-        if np.any(np.abs(np.diag(r)[:width]) == 0.0):
+    if failure is None:
+        if np.any(np.abs(np.diag(fit.r_solution)) == 0.0):
             failure = "the weighted design is singular at the solution"
         else:
-            rinv = triangular_inverse(r[:width, :width])
-    if failure:
-        notes.insert(0, failure)
-        llf = None  # of the last iterate, not of a maximum: nothing to report
-    return GlmTier(width, beta, mu, weights, rinv, llf, failure, iterations), notes
+            rinv = triangular_inverse(fit.r_solution)
+    llf = None if failure else finite_or_none(fit.log_likelihood)
+    # None: of the last iterate, not of a maximum: nothing to report
+    return (GlmTier(width, fit.params, mu, weights, rinv, llf, failure, int(fit.iterations)),
+            [failure] if failure else [])
 
 
 _SEPARATION = ("complete or quasi-complete separation: a combination of the design columns "
@@ -139,28 +147,6 @@ _SEPARATION = ("complete or quasi-complete separation: a combination of the desi
                "exist")
 _ZERO_MEANS = ("fitted means driven to zero (e.g. a group with no events): the "
                "maximum-likelihood estimates do not exist")
-
-
-def _statistics(design: Design, t: GlmTier, family: str):
-    """Deviance, null deviance and Pearson χ² of one tier, by statsmodels' family formulas."""
-    fam = _family(family)
-    y = design.y
-    deviance = float(fam.deviance(y, t.mu))
-    pearson = float(np.sum((y - t.mu) ** 2 / fam.variance(t.mu)))
-    return deviance, pearson
-
-
-def _null_deviance(design: Design, family: str) -> float | None:
-    import statsmodels.api as sm
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            null = sm.GLM(design.y, np.ones((len(design.y), 1)), family=_family(family),
-                          offset=design.offset).fit()
-        except Exception:  # the null model is a courtesy figure; its failure is not the fit's
-            return None
-    return finite_or_none(null.deviance)
 
 
 def _sandwich(design: Design, t: GlmTier, robust: list[Covariance]) -> dict:
@@ -175,7 +161,7 @@ def _sandwich(design: Design, t: GlmTier, robust: list[Covariance]) -> dict:
 def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
               notes: list[str], sandwich: dict, null_deviance: float | None,
               statistics: tuple[float, float] | None = None) -> TierFit:
-    """``statistics``: (deviance, Pearson χ²) when already accumulated (a streamed run)."""
+    """``statistics``: (deviance, Pearson X²) as the IRLS accumulated them at the solution."""
     from .design import tier_terms
 
     n = design.x.shape[0]
@@ -198,8 +184,8 @@ def _tier_fit(analysis, design, tier, k, t: GlmTier, covariances, clusters,
                                       t.failure)
     deviance = pearson_x2 = dispersion = None
     warned = list(notes)
-    if usable and (t.mu is not None or statistics is not None):  # never the last iterate's
-        deviance, pearson_x2 = statistics or _statistics(design, t, analysis.family)
+    if usable and statistics is not None:  # never the last iterate's
+        deviance, pearson_x2 = statistics
         dispersion = pearson_x2 / residual_df if residual_df > 0 else None
         if analysis.family == "poisson" and dispersion is not None and \
                 dispersion > OVERDISPERSION:

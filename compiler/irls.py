@@ -1,7 +1,7 @@
 """Binomial (logit) and Poisson (log) fits by IRLS, one streamed pass over the data per iteration.
 
 Each iteration is a reduction: every batch contributes the TSQR partial of the weighted
-working design [√w·X | √w·z] and its share of the deviance, log-likelihood and Pearson χ²;
+working design [√w·X | √w·z] and its share of the deviance, log-likelihood and Pearson X²;
 the combine step stacks the partials. The weighted least-squares step is solved from R,
 so the accuracy is QR's, never that of the normal equations.
 
@@ -9,9 +9,9 @@ The iteration is the one statsmodels' GLM.fit runs by default (starting values
 ``family.starting_mu``, convergence when successive deviances agree within 1e-8, at most
 100 iterations; the covariance comes from the weights of the last weighted least-squares
 step). That criterion leaves 9–12 correct digits in the coefficients, so once it is met
-REFINE_STEPS more Newton steps are taken, as the in-memory fit takes them after statsmodels
-(compiler/fit_glm.py): both land on the maximum-likelihood estimate to working precision,
-in the same number of iterations.
+REFINE_STEPS more Newton steps are taken, to the maximum-likelihood estimate at working
+precision. An in-memory fit (compiler/fit_glm.py) runs the same passes over the rows it
+holds, a chunk at a time (``in_batches``).
 Every tier of an analysis is fitted in the same passes: a tier that has converged simply
 stops taking part.
 """
@@ -166,7 +166,10 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
             break
         if on_pass is not None:
             on_pass(iteration)
-        sums = _one_pass(batches(), family, moments, active)
+        # the log-likelihood and Pearson X² are kept from the last pass only: summed there
+        last = [t.refining is not None and t.refining >= REFINE_STEPS or REFINE_STEPS == 0
+                or len(t.deviances) - 1 >= max_iterations for t in active]
+        sums = _one_pass(batches(), family, moments, active, last)
         for tier, (dev, null_dev, llf, pearson, boundary, acc) in zip(active, sums):
             tier.deviances.append(dev)
             seen = len(tier.deviances) - 2  # iterations completed before this pass
@@ -186,38 +189,23 @@ def fit_tiers(batches: Batches, family_name: str, widths: Iterable[int], *,
     return tuple(t.done for t in tiers)  # type: ignore[misc]
 
 
-def refine(x: np.ndarray, y: np.ndarray, offset: np.ndarray | None, family_name: str,
-           beta: np.ndarray) -> np.ndarray:
-    """REFINE_STEPS Newton (IRLS) steps from ``beta`` on data held in memory: the in-memory
-    fit's counterpart of the streamed passes after the deviance criterion."""
-    from .qr import augmented_r
-
-    family = Family(family_name)
-    off = 0.0 if offset is None else offset
-    beta = np.asarray(beta, dtype=np.float64)
-    width = len(beta)
-    for _ in range(REFINE_STEPS):
-        eta = x @ beta + off
-        mu = family.mean(eta)
-        derivative = family.link_deriv(mu)
-        weight = 1 / (derivative ** 2 * family.variance(mu))
-        r = augmented_r(x, eta + derivative * (y - mu) - off, weights=weight)
-        beta = solve_triangular(r[:width, :width], r[:width, width])
-    return beta
-
-
 def _close(before: float, after: float, tolerance: float) -> bool:
     change = abs(before - after)
     return change <= tolerance or change <= ROUNDING * abs(after)
 
 
 def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
-              tiers: list[_Tier]) -> list[tuple]:
-    sums = [[0.0, 0.0, 0.0, 0.0, np.inf, TsqrAccumulator(t.width + 1)] for t in tiers]
+              tiers: list[_Tier], last: list[bool]) -> list[tuple]:
+    """Per tier: deviance, null deviance, log-likelihood and Pearson X² (NaN unless ``last``
+    says the pass may be the tier's last), the closest fitted value to the boundary, and
+    the R factor of the weighted working design."""
+    nan = float("nan")
+    sums = [[0.0, 0.0, 0.0 if final else nan, 0.0 if final else nan, np.inf,
+             TsqrAccumulator(t.width + 1)] for t, final in zip(tiers, last)]
     for x, y, offset in batches:
-        null_mu = _null_mean(family, moments, offset, len(y))
+        null_deviance = family.deviance(y, _null_mean(family, moments, offset, len(y)))
         off = 0.0 if offset is None else offset
-        for tier, acc in zip(tiers, sums):
+        for tier, acc, final in zip(tiers, sums, last):
             if tier.params is None:
                 mu = family.start(y, moments.y_mean)
                 eta = family.link(mu)
@@ -225,9 +213,10 @@ def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
                 eta = x[:, :tier.width] @ tier.params + off
                 mu = family.mean(eta)
             acc[0] += family.deviance(y, mu)
-            acc[1] += family.deviance(y, null_mu)
-            acc[2] += family.log_likelihood(y, mu)
-            acc[3] += family.pearson(y, mu)
+            acc[1] += null_deviance
+            if final:
+                acc[2] += family.log_likelihood(y, mu)
+                acc[3] += family.pearson(y, mu)
             if len(mu):
                 near = np.minimum(mu, 1 - mu) if family.name == "binomial" else mu
                 acc[4] = min(acc[4], float(near.min()))
@@ -243,7 +232,7 @@ def _one_pass(batches: Iterable[Batch], family: Family, moments: Moments,
 
 def in_batches(x: np.ndarray, y: np.ndarray, offset: np.ndarray | None,
                rows: int) -> Batches:
-    """Arrays held in memory, served as batches of ``rows`` rows (for tests and small data)."""
+    """Arrays held in memory, served as batches of ``rows`` rows (views, no copies)."""
 
     def passes() -> Iterator[Batch]:
         for start in range(0, len(y), rows):

@@ -77,7 +77,7 @@ def test_logistic_matches_statsmodels_logit(logistic):
 
 def test_logistic_matches_a_direct_maximisation_of_the_likelihood(logistic):
     d, result = logistic
-    x, y = d.x, d.y
+    x, y = np.asarray(d.x), d.y
 
     def negative_log_likelihood(beta):  # Bernoulli log-likelihood, written out
         eta = x @ beta

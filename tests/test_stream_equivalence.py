@@ -1,7 +1,8 @@
 """A streamed run gives the in-memory run's numbers, to 12 significant digits.
 
-The in-memory path (compiler/read.py, bind.py, design.py, fit.py — one Householder QR for the
-gaussian tiers, statsmodels GLM for binomial and Poisson) is the reference the streamed path
+The in-memory path (compiler/read.py, bind.py, design.py, fit.py — one chunked Householder QR
+for the gaussian tiers, the IRLS over the rows held for binomial and Poisson, itself checked
+against statsmodels in tests/test_glm_in_memory.py) is the reference the streamed path
 (TSQR over batches, streamed IRLS) is checked against; the data are seeded simulations built
 here, written to a CSV and read back in small batches so that every pass crosses many of them.
 """
